@@ -4,7 +4,18 @@
 //! one concept of it. No wasm, web or command-line code lives here.
 
 pub mod error;
+pub mod progress;
+pub mod settings;
 pub mod stack;
+pub mod plane_group;
+pub mod report;
+// Input and output.
+pub mod image_io;
+pub mod npy;
+pub mod picture;
+pub mod demo;
 
 pub use error::{Error, Result};
+pub use progress::{Progress, Silent};
+pub use settings::{BandSpec, FitSettings};
 pub use stack::{Image, Stack};

@@ -1,0 +1,73 @@
+//! The fit report: the numbers a user exports (`report.json`).
+//!
+//! Energies and errors are sums of squared pixel values over the stack, with
+//! integer images scaled to [0, 1] (MATH.md §1); relative errors divide by the
+//! stack's total energy.
+
+use crate::settings::FitSettings;
+use serde::{Deserialize, Serialize};
+
+/// One point of the error curve: the optimal error with `generators` generators.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CurvePoint {
+    pub generators: usize,
+    pub error: f64,
+    pub relative_error: f64,
+}
+
+/// Error of one image: `||f_i - P_V f_i||²` at the largest generator count.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ImageError {
+    pub file: String,
+    pub energy: f64,
+    pub error: f64,
+    pub relative_error: f64,
+}
+
+/// The band-limit terms of `E(F,S) = E(P_Ω F, S) + ||F − P_Ω F||²` at the
+/// largest generator count.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct BandReport {
+    /// Number of frequencies in the chosen set `Ω`.
+    pub frequencies: usize,
+    /// `||F − P_Ω F||²`: energy outside the band.
+    pub outside_energy: f64,
+    /// `E(P_Ω F, S)`: error of the band-limited stack.
+    pub inside_error: f64,
+}
+
+/// Facts about one generator (MATH.md §5b: `||φ_l||² |Γ| = dim D_l`).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct GeneratorInfo {
+    pub index: usize,
+    /// `||φ_l||²`.
+    pub norm_squared: f64,
+    /// Energy of the stack captured by this generator: `E(l−1) − E(l)`.
+    pub captured_energy: f64,
+    /// Share of the stack's total energy captured by this generator.
+    pub captured_share: f64,
+    /// `dim D_l`, the dimension of the generator's layer; 0 means it adds nothing.
+    pub layer_dimension: usize,
+}
+
+/// Everything a fit reports, in the format written to `report.json`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Report {
+    /// Always `"orbitspan-report"`.
+    pub format: String,
+    /// Format version, currently 1.
+    pub version: u32,
+    pub settings: FitSettings,
+    pub height: usize,
+    pub width: usize,
+    /// `|G|`, the point group order.
+    pub point_group_order: usize,
+    /// `d`, pixels (or samples) in one primitive cell.
+    pub cell_pixels: usize,
+    /// `Σ_i ||f_i||²`.
+    pub total_energy: f64,
+    pub error_curve: Vec<CurvePoint>,
+    pub images: Vec<ImageError>,
+    pub band: Option<BandReport>,
+    pub generators: Vec<GeneratorInfo>,
+}
