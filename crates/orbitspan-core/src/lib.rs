@@ -9,6 +9,8 @@ pub mod settings;
 pub mod stack;
 pub mod plane_group;
 pub mod report;
+pub mod lattice;
+pub mod spectrum;
 // Input and output.
 pub mod image_io;
 pub mod npy;
