@@ -48,6 +48,9 @@ pub struct GeneratorInfo {
     pub captured_share: f64,
     /// `dim D_l`, the dimension of the generator's layer; 0 means it adds nothing.
     pub layer_dimension: usize,
+    /// Largest imaginary part left by the inverse transform, relative to the
+    /// generator's norm (a realness check; expect round-off, below 1e-9).
+    pub imaginary_part: f64,
 }
 
 /// Everything a fit reports, in the format written to `report.json`.

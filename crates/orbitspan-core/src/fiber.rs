@@ -1,0 +1,286 @@
+//! The point group acting on Fourier fibers (MATH.md §4).
+//!
+//! For a coset representative `γ = (g, t)` and a fiber `ξ + Λ^⊥`, the fiber
+//! at `ξ` of `π(γ) f` is `v_η = e^{−2πi (ξ+η)·t/n} f̂(gᵀ(ξ+η))`: a *gather*
+//! from the spectrum at the fiber `gᵀξ + Λ^⊥`, times phases. The point group
+//! permutes fibers; each orbit has a representative `ξ0` (its smallest fiber
+//! index), a stabiliser `H`, and `r = |G|/|H|` points.
+
+use crate::error::{Error, Result};
+use crate::lattice::{Freq, Lattice};
+use crate::plane_group::{mat_mul, mat_vec, IntMatrix, PlaneGroup};
+use num_complex::Complex64;
+
+/// A point-group element as an affine map of pixels `x ↦ g x + t`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct PixelOp {
+    pub g: IntMatrix,
+    /// Translation in pixels.
+    pub t: [i64; 2],
+}
+
+/// Indices into a row-major spectrum and phases: `v_k = phase_k · f̂[index_k]`.
+#[derive(Clone, Debug)]
+pub struct Gather {
+    pub index: Vec<usize>,
+    pub phase: Vec<Complex64>,
+}
+
+impl Gather {
+    /// The gathered fiber vector of one spectrum.
+    pub fn apply(&self, spectrum: &[Complex64]) -> Vec<Complex64> {
+        self.index.iter().zip(&self.phase).map(|(&i, &p)| p * spectrum[i]).collect()
+    }
+    /// The inverse: writes `f̂[index_k] = conj(phase_k) · v_k`.
+    pub fn scatter(&self, v: &[Complex64], spectrum: &mut [Complex64]) {
+        for ((&i, &p), &x) in self.index.iter().zip(&self.phase).zip(v) {
+            spectrum[i] = p.conj() * x;
+        }
+    }
+}
+
+/// One orbit of the point group on the fibers.
+#[derive(Clone, Debug)]
+pub struct Orbit {
+    /// Representative frequency `ξ0` (canonical representative of its fiber).
+    pub rep: Freq,
+    /// The orbit's fibers with the first operation (index into the point
+    /// group) reaching each, in order of that operation; point 0 is `ξ0`,
+    /// reached by the identity.
+    pub points: Vec<(usize, usize)>,
+    /// Indices of the stabiliser `H = { g : gᵀξ0 ∈ ξ0 + Λ^⊥ }`, identity first.
+    pub stabiliser: Vec<usize>,
+}
+
+/// The plane group on a torus: lattice, point-group operations in pixels and
+/// their multiplication table.
+#[derive(Clone, Debug)]
+pub struct Symmetry {
+    lattice: Lattice,
+    ops: Vec<PixelOp>,
+    /// `product[a][b]` = index of the element `g_a g_b`.
+    product: Vec<Vec<usize>>,
+    dual: Vec<Freq>,
+}
+
+impl Symmetry {
+    /// The group `group` with conventional cell `cell` on an `n1 x n2` torus.
+    /// Checks that every operation maps the lattice and the torus to itself.
+    pub fn new(n: [usize; 2], cell: [usize; 2], group: &PlaneGroup) -> Result<Symmetry> {
+        let name = group.name();
+        let lattice = Lattice::new(n, cell, group.symbol.is_centred())?;
+        let pg = group.point_group();
+        let mut ops = Vec::with_capacity(pg.order());
+        for op in pg.coset_representatives() {
+            let diagonal = op.g[0][1] == 0 && op.g[1][0] == 0;
+            if !diagonal && (n[0] != n[1] || cell[0] != cell[1]) {
+                return Err(Error::input(format!(
+                    "plane group {name} rotates or exchanges the axes: it needs square images and a square cell (images {}x{}, cell {}x{})",
+                    n[0], n[1], cell[0], cell[1]
+                )));
+            }
+            let mut t = [0i64; 2];
+            for i in 0..2 {
+                if op.half[i] != 0 && cell[i] % 2 != 0 {
+                    return Err(Error::input(format!(
+                        "plane group {name} has a glide or centring by half a cell: the cell side {} must be even",
+                        cell[i]
+                    )));
+                }
+                t[i] = op.half[i] * cell[i] as i64 / 2;
+            }
+            // g must map the lattice to itself.
+            let mut basis = vec![[cell[0] as i64, 0], [0, cell[1] as i64]];
+            if lattice.is_centred() {
+                basis.push([cell[0] as i64 / 2, cell[1] as i64 / 2]);
+            }
+            if basis.iter().any(|&k| !lattice.contains(mat_vec(&op.g, k))) {
+                return Err(Error::input(format!(
+                    "plane group {name} does not preserve a {}x{} cell; use a cell of the shape the group needs",
+                    cell[0], cell[1]
+                )));
+            }
+            ops.push(PixelOp { g: op.g, t });
+        }
+        let find = |g: &IntMatrix| ops.iter().position(|o| &o.g == g);
+        let mut product = vec![vec![0; ops.len()]; ops.len()];
+        for a in 0..ops.len() {
+            for b in 0..ops.len() {
+                let gab = mat_mul(&ops[a].g, &ops[b].g);
+                product[a][b] = find(&gab).ok_or_else(|| Error::Internal(format!("{name}: point group not closed")))?;
+            }
+        }
+        let dual = lattice.dual();
+        let sym = Symmetry { lattice, ops, product, dual };
+        // The coset representatives must compose modulo the lattice.
+        for a in 0..sym.ops.len() {
+            for b in 0..sym.ops.len() {
+                if !sym.lattice.contains(sym.cocycle_shift(a, b)) {
+                    return Err(Error::Internal(format!("{name}: coset representatives do not compose mod the lattice")));
+                }
+            }
+        }
+        Ok(sym)
+    }
+
+    pub fn lattice(&self) -> &Lattice {
+        &self.lattice
+    }
+    /// Point-group operations, identity first.
+    pub fn ops(&self) -> &[PixelOp] {
+        &self.ops
+    }
+    /// `|G|`.
+    pub fn order(&self) -> usize {
+        self.ops.len()
+    }
+    /// `|Γ| = |Λ| |G|`.
+    pub fn group_size(&self) -> usize {
+        self.lattice.fiber_count() * self.ops.len()
+    }
+    /// Index of `g_a g_b`.
+    pub fn product(&self, a: usize, b: usize) -> usize {
+        self.product[a][b]
+    }
+    /// The lattice vector `k = g_a t_b + t_a − t_{ab}` with
+    /// `γ_a γ_b = τ_k γ_{ab}`.
+    pub fn cocycle_shift(&self, a: usize, b: usize) -> [i64; 2] {
+        let (oa, ob, oab) = (&self.ops[a], &self.ops[b], &self.ops[self.product[a][b]]);
+        let gt = mat_vec(&oa.g, ob.t);
+        [gt[0] + oa.t[0] - oab.t[0], gt[1] + oa.t[1] - oab.t[1]]
+    }
+
+    /// The gather giving the fiber at `xi` of `π(γ_op) f` (MATH.md §4).
+    pub fn gather(&self, xi: Freq, op: usize) -> Gather {
+        let o = &self.ops[op];
+        let mut index = Vec::with_capacity(self.dual.len());
+        let mut phase = Vec::with_capacity(self.dual.len());
+        for &eta in &self.dual {
+            let zeta = self.lattice.add(xi, eta);
+            index.push(self.lattice.linear(self.lattice.dual_action(&o.g, zeta)));
+            let turns = self.lattice.turns(zeta, o.t);
+            phase.push(Complex64::from_polar(1.0, -2.0 * std::f64::consts::PI * turns));
+        }
+        Gather { index, phase }
+    }
+
+    /// The monomial unitary `U_h` of a stabiliser element on the fiber at
+    /// `xi`: `(U_h v)_η = e^{−2πi(ξ+η)·t_h/n} v_{η'}`, `ξ+η' = g_hᵀ(ξ+η)`.
+    pub fn fiber_unitary(&self, xi: Freq, op: usize) -> Result<crate::isotypic::Monomial> {
+        let gather = self.gather(xi, op);
+        let n2 = self.lattice.torus()[1];
+        let mut perm = Vec::with_capacity(gather.index.len());
+        for &i in &gather.index {
+            let target = [i / n2, i % n2];
+            let k = self
+                .lattice
+                .dual_index(self.lattice.sub(target, xi))
+                .ok_or_else(|| Error::Internal("operation is not in the stabiliser of this fiber".into()))?;
+            perm.push(k);
+        }
+        Ok(crate::isotypic::Monomial { perm, phase: gather.phase })
+    }
+
+    /// The orbits of the point group on the fibers, in order of their smallest fiber.
+    pub fn orbits(&self) -> Vec<Orbit> {
+        let count = self.lattice.fiber_count();
+        let mut seen = vec![false; count];
+        let mut out = Vec::new();
+        for id in 0..count {
+            if seen[id] {
+                continue;
+            }
+            let rep = self.lattice.fiber_rep(id);
+            let mut points: Vec<(usize, usize)> = Vec::new();
+            let mut stabiliser = Vec::new();
+            for (k, o) in self.ops.iter().enumerate() {
+                let f = self.lattice.fiber_of(self.lattice.dual_action(&o.g, rep));
+                if f == id {
+                    stabiliser.push(k);
+                }
+                if !points.iter().any(|p| p.0 == f) {
+                    points.push((f, k));
+                }
+            }
+            for p in &points {
+                seen[p.0] = true;
+            }
+            out.push(Orbit { rep, points, stabiliser });
+        }
+        out
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::plane_group::GroupSymbol;
+    use crate::spectrum::fft2;
+    use crate::stack::Image;
+
+    /// `π(g,t) f (x) = f(g⁻¹(x − t))` computed in pixel space.
+    fn act(f: &Image, op: &PixelOp) -> Image {
+        let (n1, n2) = (f.height as i64, f.width as i64);
+        let mut out = Image::zeros(f.height, f.width);
+        for x1 in 0..n1 {
+            for x2 in 0..n2 {
+                // y = g x + t; out(y) = f(x)
+                let y = mat_vec(&op.g, [x1, x2]);
+                let y = [(y[0] + op.t[0]).rem_euclid(n1), (y[1] + op.t[1]).rem_euclid(n2)];
+                out.pixels[(y[0] * n2 + y[1]) as usize] = f.at(x1 as usize, x2 as usize);
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn gather_is_the_fiber_of_the_transformed_image() {
+        // The Fourier action (MATH.md §4) checked against pixel space for every group.
+        for symbol in GroupSymbol::ALL {
+            let (n, cell) = if symbol.is_hexagonal() || matches!(symbol, GroupSymbol::P4 | GroupSymbol::P4m | GroupSymbol::P4g) {
+                ([12, 12], [4, 4])
+            } else {
+                ([12, 8], [4, 4])
+            };
+            let sym = Symmetry::new(n, cell, &PlaneGroup::standard(symbol)).unwrap();
+            let f = Image::new(n[0], n[1], (0..n[0] * n[1]).map(|i| ((i * 37 + 11) % 23) as f64).collect());
+            let spec = fft2(&f);
+            for (k, op) in sym.ops().iter().enumerate() {
+                let moved = fft2(&act(&f, op));
+                for fiber in 0..sym.lattice().fiber_count() {
+                    let xi = sym.lattice().fiber_rep(fiber);
+                    let v = sym.gather(xi, k).apply(&spec);
+                    for (j, &eta) in sym.lattice().dual().iter().enumerate() {
+                        let z = moved[sym.lattice().linear(sym.lattice().add(xi, eta))];
+                        assert!((z - v[j]).norm() < 1e-9, "{symbol:?} op {k}");
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn orbit_stabiliser_counts() {
+        // p4m on 16x16 with cell 4x4: 16 fibers; orbit sizes times stabiliser sizes = |G|.
+        let sym = Symmetry::new([16, 16], [4, 4], &PlaneGroup::standard(GroupSymbol::P4m)).unwrap();
+        let orbits = sym.orbits();
+        let total: usize = orbits.iter().map(|o| o.points.len()).sum();
+        assert_eq!(total, 16);
+        for o in &orbits {
+            assert_eq!(o.points.len() * o.stabiliser.len(), 8);
+        }
+        // ξ0 = 0 is fixed by the whole group
+        assert_eq!(orbits[0].rep, [0, 0]);
+        assert_eq!(orbits[0].stabiliser.len(), 8);
+    }
+
+    #[test]
+    fn shape_errors_name_the_need() {
+        let p4 = PlaneGroup::standard(GroupSymbol::P4);
+        let msg = Symmetry::new([12, 8], [4, 4], &p4).unwrap_err().to_string();
+        assert!(msg.contains("square images"), "{msg}");
+        let pg = PlaneGroup::standard(GroupSymbol::Pg);
+        let msg = Symmetry::new([12, 9], [4, 3], &pg).unwrap_err().to_string();
+        assert!(msg.contains("must be even"), "{msg}");
+    }
+}

@@ -1,0 +1,310 @@
+//! The exact fit: optimal Γ-invariant space of length `≤ L` for every `L`
+//! up to the requested count, from one decomposition per fiber orbit
+//! (MATH.md §4).
+//!
+//! Per orbit with representative `ξ0`, stabiliser `H` and `r` points:
+//! pool the fibers `v_{g,i}` of `π(γ_g) f_i` at `ξ0` into `Y` (`d x m|G|`),
+//! form `C̃ = Y Yᴴ / |H|` (covariance path) or the Gram matrix `Yᴴ Y / |H|`
+//! (same non-zero spectrum, used when `m|G| < d`), split it into isotypic
+//! blocks of the stabiliser's (projective) action, and in a block of type
+//! dimension `s` give eigenvalue number `e` (largest first) to layer
+//! `⌊e / (r s²)⌋`: layer `l` holds the `r s` copies that generator `l + 1`
+//! adds. The optimal error with `L` generators is
+//! `E(L) = ||F − P_Ω F||² + Σ_orbits Σ_{layer ≥ L} λ / |T|`
+//! (summing discarded eigenvalues, not subtracting).
+
+use crate::band::{self, Band};
+use crate::error::{Error, Result};
+use crate::fiber::{Orbit, Symmetry};
+use crate::frame;
+use crate::isotypic::{isotypic_blocks, Monomial};
+use crate::model::Model;
+use crate::progress::Progress;
+use crate::report::{BandReport, CurvePoint, GeneratorInfo, Report};
+use crate::settings::FitSettings;
+use crate::spectrum::fft2;
+use crate::stack::{Image, Stack};
+use nalgebra::{DMatrix, DVector};
+use num_complex::Complex64;
+
+/// Which matrix to decompose per orbit: the `d x d` covariance or the
+/// `m|G| x m|G|` Gram matrix. `Auto` takes the smaller; the others exist so
+/// tests and benchmarks can check that both give the same result.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum FiberPath {
+    #[default]
+    Auto,
+    Covariance,
+    Gram,
+}
+
+/// A finished fit: the report (error curve, per-image errors, band terms,
+/// generator facts) and the model (settings and generators).
+#[derive(Clone, Debug)]
+pub struct Fit {
+    pub report: Report,
+    pub model: Model,
+}
+
+/// Per-orbit result: captured energy per layer, the energy beyond the last
+/// layer, and an orthonormal basis of each layer's fiber at `ξ0`.
+pub(crate) struct OrbitSolution {
+    pub layer_energy: Vec<f64>,
+    pub tail: f64,
+    pub layers: Vec<DMatrix<Complex64>>,
+}
+
+/// Checks settings against an image size without fitting: the same errors
+/// a fit would give (cell divisibility, group needs, generator count).
+pub fn validate(height: usize, width: usize, settings: &FitSettings) -> Result<Symmetry> {
+    let name = settings.group.name();
+    if settings.group.symbol.is_hexagonal() && !settings.lattice_coords {
+        return Err(Error::input(format!(
+            "plane group {name} is hexagonal: it acts only on images sampled in lattice coordinates (declare them so, or resample)"
+        )));
+    }
+    if settings.origin[0] >= height || settings.origin[1] >= width {
+        return Err(Error::input(format!(
+            "origin {},{} lies outside the {}x{} image",
+            settings.origin[0], settings.origin[1], height, width
+        )));
+    }
+    let sym = Symmetry::new([height, width], [settings.cell_rows, settings.cell_cols], &settings.group)?;
+    let d = sym.lattice().fiber_len();
+    if settings.generators == 0 {
+        return Err(Error::input("the number of generators must be at least 1"));
+    }
+    if settings.generators > d {
+        return Err(Error::input(format!(
+            "{} generators is more than the {d} pixels in one cell; at most {d} can add anything",
+            settings.generators
+        )));
+    }
+    Ok(sym)
+}
+
+/// Fits the stack: see the module documentation. Progress stages:
+/// "transforming images", "fitting frequencies", "building generators",
+/// "computing residuals".
+pub fn fit(stack: &Stack, settings: &FitSettings, progress: &mut dyn Progress) -> Result<Fit> {
+    fit_with_path(stack, settings, FiberPath::Auto, progress)
+}
+
+/// [`fit`] with a forced choice of covariance or Gram matrices.
+pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<Fit> {
+    let (h, w) = (stack.height(), stack.width());
+    let sym = validate(h, w, settings)?;
+    let lmax = settings.generators;
+    let pixels = (h * w) as f64;
+
+    // Spectra of the images, moved so that `origin` sits at pixel (0, 0).
+    let mut spectra = Vec::with_capacity(stack.len());
+    for (i, img) in stack.images().iter().enumerate() {
+        check(progress, "transforming images", i as f64 / stack.len() as f64)?;
+        spectra.push(fft2(&to_group_frame(img, settings.origin)));
+    }
+
+    // Band limit: E(F,S) = E(P_Ω F, S) + ||F − P_Ω F||².
+    let mut outside = 0.0;
+    let band: Option<Band> = match &settings.band {
+        Some(spec) => {
+            let b = band::select(&sym, spec, &spectra, settings.group.symbol.is_hexagonal())?;
+            for s in spectra.iter_mut() {
+                outside += b.restrict(s);
+            }
+            Some(b)
+        }
+        None => None,
+    };
+
+    let orbits = sym.orbits();
+    let mut solutions = Vec::with_capacity(orbits.len());
+    for (k, orbit) in orbits.iter().enumerate() {
+        check(progress, "fitting frequencies", k as f64 / orbits.len() as f64)?;
+        solutions.push(solve_orbit(&sym, orbit, &spectra, lmax, path)?);
+    }
+    drop(spectra);
+
+    let total_energy = stack.energy();
+    let mut curve = Vec::with_capacity(lmax);
+    for l in 1..=lmax {
+        let discarded: f64 = solutions.iter().map(|s| s.tail + s.layer_energy[l..].iter().sum::<f64>()).sum();
+        let error = outside + discarded / pixels;
+        curve.push(CurvePoint { generators: l, error, relative_error: ratio(error, total_energy) });
+    }
+
+    let generators = frame::parseval_generators(&sym, &orbits, &solutions, lmax, progress)?;
+    let layer_dims: Vec<usize> = (0..lmax)
+        .map(|l| orbits.iter().zip(&solutions).map(|(o, s)| o.points.len() * s.layers[l].ncols()).sum())
+        .collect();
+    let generator_images: Vec<Image> = generators
+        .iter()
+        .map(|g| from_group_frame(&g.image, settings.origin))
+        .collect();
+    let model = Model::new(settings.clone(), h, w, generator_images)?;
+    let images = model.evaluate(stack, &mut |stage: &str, f: f64| progress.update(stage, f))?;
+
+    let mut infos = Vec::with_capacity(lmax);
+    for l in 0..lmax {
+        let before = if l == 0 { total_energy } else { curve[l - 1].error };
+        let captured = (before - curve[l].error).max(0.0);
+        infos.push(GeneratorInfo {
+            index: l + 1,
+            norm_squared: generators[l].image.energy(),
+            captured_energy: captured,
+            captured_share: ratio(captured, total_energy),
+            layer_dimension: layer_dims[l],
+            imaginary_part: generators[l].imaginary_part,
+        });
+    }
+    let band_report = band.map(|b| BandReport {
+        frequencies: b.len(),
+        outside_energy: outside,
+        inside_error: curve[lmax - 1].error - outside,
+    });
+    let report = Report {
+        format: "orbitspan-report".into(),
+        version: 1,
+        settings: settings.clone(),
+        height: h,
+        width: w,
+        point_group_order: sym.order(),
+        cell_pixels: sym.lattice().fiber_len(),
+        total_energy,
+        error_curve: curve,
+        images,
+        band: band_report,
+        generators: infos,
+    };
+    Ok(Fit { report, model })
+}
+
+pub(crate) fn ratio(a: f64, b: f64) -> f64 {
+    if b > 0.0 {
+        a / b
+    } else {
+        0.0
+    }
+}
+
+pub(crate) fn check(progress: &mut dyn Progress, stage: &str, fraction: f64) -> Result<()> {
+    if progress.update(stage, fraction) {
+        Ok(())
+    } else {
+        Err(Error::Cancelled)
+    }
+}
+
+/// Moves pixel `origin` to `(0, 0)`: `out(x) = f(x + origin)`.
+pub(crate) fn to_group_frame(img: &Image, origin: [usize; 2]) -> Image {
+    img.shifted((img.height - origin[0]) % img.height, (img.width - origin[1]) % img.width)
+}
+
+/// The inverse of [`to_group_frame`].
+pub(crate) fn from_group_frame(img: &Image, origin: [usize; 2]) -> Image {
+    img.shifted(origin[0], origin[1])
+}
+
+/// The Gram-side action of a stabiliser element: `U_h Y = Y Π_h` with
+/// `Π_h[(hg, i), (g, i)] = e^{−2πi ξ0·k/n}`, `γ_h γ_g = τ_k γ_{hg}`.
+fn gram_unitary(sym: &Symmetry, xi0: [usize; 2], h: usize, images: usize) -> Monomial {
+    let gcount = sym.order();
+    let mut perm = vec![0; gcount * images];
+    let mut phase = vec![Complex64::new(0.0, 0.0); gcount * images];
+    for c in 0..gcount {
+        let target = sym.product(h, c);
+        let turns = sym.lattice().turns(xi0, sym.cocycle_shift(h, c));
+        let p = Complex64::from_polar(1.0, -2.0 * std::f64::consts::PI * turns);
+        for i in 0..images {
+            perm[target * images + i] = c * images + i;
+            phase[target * images + i] = p;
+        }
+    }
+    Monomial { perm, phase }
+}
+
+/// Decomposes one orbit (see the module documentation).
+pub(crate) fn solve_orbit(
+    sym: &Symmetry,
+    orbit: &Orbit,
+    spectra: &[Vec<Complex64>],
+    lmax: usize,
+    path: FiberPath,
+) -> Result<OrbitSolution> {
+    let gcount = sym.order();
+    let m = spectra.len();
+    let d = sym.lattice().fiber_len();
+    let r = orbit.points.len();
+    let hsize = orbit.stabiliser.len() as f64;
+    let mut y = DMatrix::<Complex64>::zeros(d, gcount * m);
+    for g in 0..gcount {
+        let gather = sym.gather(orbit.rep, g);
+        for (i, s) in spectra.iter().enumerate() {
+            let v = gather.apply(s);
+            y.column_mut(g * m + i).copy_from_slice(&v);
+        }
+    }
+    let use_gram = match path {
+        FiberPath::Auto => gcount * m < d,
+        FiberPath::Covariance => false,
+        FiberPath::Gram => true,
+    };
+    let scale = Complex64::new(1.0 / hsize, 0.0);
+    let (x, ops) = if use_gram {
+        let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
+        (y.adjoint() * &y * scale, ops)
+    } else {
+        let ops = orbit
+            .stabiliser
+            .iter()
+            .map(|&h| sym.fiber_unitary(orbit.rep, h))
+            .collect::<Result<Vec<_>>>()?;
+        (&y * y.adjoint() * scale, ops)
+    };
+    let n = x.nrows();
+    let blocks = isotypic_blocks(n, &ops)?;
+    let trace: f64 = (0..n).map(|i| x[(i, i)].re).sum();
+    let tol = 1e-12 * trace;
+    let mut layer_energy = vec![0.0; lmax];
+    let mut tail = 0.0;
+    let mut layer_vectors: Vec<Vec<DVector<Complex64>>> = vec![Vec::new(); lmax];
+    for b in &blocks {
+        let xw = b.basis.adjoint() * &x * &b.basis;
+        let eig = nalgebra::SymmetricEigen::new(xw);
+        let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
+        order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
+        let s = b.type_dim;
+        let per_layer = r * s * s;
+        for (rank, &e) in order.iter().enumerate() {
+            let lambda = eig.eigenvalues[e].max(0.0);
+            match layer_energy.get_mut(rank / per_layer) {
+                Some(slot) => *slot += lambda,
+                None => tail += lambda,
+            }
+        }
+        // Keep whole copies (s eigenvectors) with non-negligible energy.
+        for (copy, chunk) in order.chunks(s).enumerate() {
+            let layer = copy / (r * s);
+            if layer >= lmax {
+                break;
+            }
+            let mean = chunk.iter().map(|&e| eig.eigenvalues[e]).sum::<f64>() / s as f64;
+            if !(mean > tol) {
+                continue;
+            }
+            for &e in chunk {
+                let v = &b.basis * eig.eigenvectors.column(e);
+                let u = if use_gram { &y * v } else { v };
+                let norm = u.norm();
+                if norm > 0.0 {
+                    layer_vectors[layer].push(u / Complex64::new(norm, 0.0));
+                }
+            }
+        }
+    }
+    let layers = layer_vectors
+        .into_iter()
+        .map(|cols| if cols.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&cols) })
+        .collect();
+    Ok(OrbitSolution { layer_energy, tail, layers })
+}
