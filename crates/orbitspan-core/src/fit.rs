@@ -302,9 +302,28 @@ pub(crate) fn solve_orbit(
             }
         }
     }
-    let layers = layer_vectors
-        .into_iter()
-        .map(|cols| if cols.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&cols) })
-        .collect();
+    // Re-orthonormalise in layer order (modified Gram–Schmidt, twice): the
+    // Gram path's `Y v / ||Y v||` loses orthogonality for small eigenvalues.
+    // Spans of every prefix of layers are kept, so the layers stay nested.
+    let mut done: Vec<DVector<Complex64>> = Vec::new();
+    let mut layers = Vec::with_capacity(lmax);
+    for cols in layer_vectors {
+        let start = done.len();
+        for mut v in cols {
+            for _ in 0..2 {
+                for q in &done {
+                    let c = q.dotc(&v);
+                    v -= q * c;
+                }
+            }
+            let norm = v.norm();
+            if norm > 0.5 {
+                done.push(v / Complex64::new(norm, 0.0));
+            } else {
+                return Err(Error::Internal(format!("fiber {:?}: kept vectors are not independent", orbit.rep)));
+            }
+        }
+        layers.push(if done.len() == start { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&done[start..]) });
+    }
     Ok(OrbitSolution { layer_energy, tail, layers })
 }

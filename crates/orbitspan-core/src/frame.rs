@@ -33,13 +33,52 @@ pub(crate) struct Generator {
     pub imaginary_part: f64,
 }
 
-/// The fixed reference image `e`: deterministic pseudo-random values.
-fn reference_image(n1: usize, n2: usize) -> Image {
-    let mut rng = SplitMix(0x0b17_5ba2_0000_0001);
+/// Fixed reference images `e`: deterministic pseudo-random values, one per seed.
+fn reference_image(n1: usize, n2: usize, which: u64) -> Image {
+    let mut rng = SplitMix(0x0b17_5ba2_0000_0001 ^ which.wrapping_mul(0x9E37_79B9_7F4A_7C15));
     Image::new(n1, n2, (0..n1 * n2).map(|_| rng.symmetric()).collect())
 }
 
+/// How many reference images an orbit may try, and the conditioning
+/// (smallest over largest kept eigenvalue of `WᴴW`) that is good enough.
+/// Round-off in `φ` grows like machine epsilon over this ratio.
+const REFERENCES: u64 = 4;
+const GOOD_CONDITIONING: f64 = 1e-4;
+
+/// `φ` at every point of one orbit from `ψ` (already set on the orbit), with
+/// the worst conditioning met.
+fn orbit_generator(sym: &Symmetry, orbit: &Orbit, k: usize, psi: &[Complex64]) -> (Vec<([usize; 2], DVector<Complex64>)>, f64) {
+    let l = sym.lattice();
+    let d = l.fiber_len();
+    let mut worst = f64::INFINITY;
+    let mut out = Vec::with_capacity(orbit.points.len());
+    for &(fiber, _) in &orbit.points {
+        let xi = l.fiber_rep(fiber);
+        let w = fiber_matrix(sym, xi, &[psi]);
+        let eig = nalgebra::SymmetricEigen::new(w.adjoint() * &w);
+        let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
+        order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
+        let top = eig.eigenvalues[order[0]];
+        let kth = eig.eigenvalues[order[k - 1]];
+        let ratio = if top > 0.0 && kth > 0.0 { kth / top } else { 0.0 };
+        worst = worst.min(ratio);
+        let mut coef = DVector::<Complex64>::zeros(sym.order());
+        if ratio > 0.0 {
+            for &e in &order[..k] {
+                let v = eig.eigenvectors.column(e);
+                coef += v * (v[0].conj() / eig.eigenvalues[e].sqrt());
+            }
+        }
+        out.push((xi, (&w * coef) * Complex64::new((d as f64).sqrt(), 0.0)));
+    }
+    (out, worst)
+}
+
 /// The Parseval generators `φ_1..φ_L` in the group frame (origin at (0,0)).
+///
+/// Per orbit the reference image is the first of [`REFERENCES`] fixed ones
+/// whose conditioning reaches [`GOOD_CONDITIONING`] (else the best); the
+/// conjugate orbit `−O` reuses the choice made for `O`, so `ψ` and `φ` are real.
 pub(crate) fn parseval_generators(
     sym: &Symmetry,
     orbits: &[Orbit],
@@ -49,56 +88,58 @@ pub(crate) fn parseval_generators(
 ) -> Result<Vec<Generator>> {
     let l = sym.lattice();
     let [n1, n2] = l.torus();
-    let d = l.fiber_len();
-    let reference = fft2(&reference_image(n1, n2));
+    let references: Vec<Vec<Complex64>> = (0..REFERENCES).map(|c| fft2(&reference_image(n1, n2, c))).collect();
+    // conjugate[o]: the orbit holding −ξ0.
+    let mut orbit_of_fiber = vec![0; l.fiber_count()];
+    for (o, orbit) in orbits.iter().enumerate() {
+        for &(f, _) in &orbit.points {
+            orbit_of_fiber[f] = o;
+        }
+    }
+    let conjugate: Vec<usize> = orbits.iter().map(|o| orbit_of_fiber[l.fiber_of(l.neg(o.rep))]).collect();
     let mut out = Vec::with_capacity(lmax);
     for layer in 0..lmax {
         check(progress, "building generators", layer as f64 / lmax as f64)?;
-        // ψ = P_{D_l} e, fiber by fiber: transport each orbit point to ξ0,
-        // project on the layer's basis there, transport back.
         let mut psi = vec![Complex64::new(0.0, 0.0); n1 * n2];
-        for (orbit, sol) in orbits.iter().zip(solutions) {
-            let q = &sol.layers[layer];
-            if q.ncols() == 0 {
-                continue;
-            }
-            for &(_, op) in &orbit.points {
-                let gather = sym.gather(orbit.rep, op);
-                let x = DVector::from_vec(gather.apply(&reference));
-                let y = q * (q.adjoint() * x);
-                gather.scatter(y.as_slice(), &mut psi);
-            }
-        }
-        // φ = S_ψ^{−1/2} ψ at every fiber.
         let mut phi = vec![Complex64::new(0.0, 0.0); n1 * n2];
-        for (orbit, sol) in orbits.iter().zip(solutions) {
-            let k = sol.layers[layer].ncols();
+        let mut chosen = vec![0u64; orbits.len()];
+        for (o, (orbit, sol)) in orbits.iter().zip(solutions).enumerate() {
+            let q = &sol.layers[layer];
+            let k = q.ncols();
             if k == 0 {
                 continue;
             }
-            for &(fiber, _) in &orbit.points {
-                let xi = l.fiber_rep(fiber);
-                let w = fiber_matrix(sym, xi, &[&psi]);
-                let gram = w.adjoint() * &w;
-                let eig = nalgebra::SymmetricEigen::new(gram);
-                let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
-                order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
-                let top = eig.eigenvalues[order[0]];
-                let kth = eig.eigenvalues[order[k - 1]];
-                if !(kth > 1e-20 * top && top > 0.0) {
-                    return Err(Error::Internal(format!(
-                        "generator {} at frequency {:?}: the reference vector does not generate its layer",
-                        layer + 1,
-                        xi
-                    )));
+            let candidates: Vec<u64> = if conjugate[o] < o { vec![chosen[conjugate[o]]] } else { (0..REFERENCES).collect() };
+            let mut best: Option<(u64, Vec<([usize; 2], DVector<Complex64>)>, f64)> = None;
+            for c in candidates {
+                // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
+                // project on the layer's basis there, transport back.
+                for &(_, op) in &orbit.points {
+                    let gather = sym.gather(orbit.rep, op);
+                    let x = DVector::from_vec(gather.apply(&references[c as usize]));
+                    let y = q * (q.adjoint() * x);
+                    gather.scatter(y.as_slice(), &mut psi);
                 }
-                let mut coef = DVector::<Complex64>::zeros(sym.order());
-                for &e in &order[..k] {
-                    let v = eig.eigenvectors.column(e);
-                    coef += v * (v[0].conj() / eig.eigenvalues[e].sqrt());
+                let (fibers, worst) = orbit_generator(sym, orbit, k, &psi);
+                let better = best.as_ref().map_or(true, |b| worst > b.2);
+                if better {
+                    best = Some((c, fibers, worst));
                 }
-                let fiber_phi = (&w * coef) * Complex64::new((d as f64).sqrt(), 0.0);
-                sym.gather(xi, 0).scatter(fiber_phi.as_slice(), &mut phi);
+                if worst >= GOOD_CONDITIONING {
+                    break;
+                }
+            }
+            let (c, fibers, worst) = best.expect("at least one candidate");
+            if !(worst > 1e-20) {
+                return Err(Error::Internal(format!(
+                    "generator {} at frequency {:?}: no reference vector generates its layer",
+                    layer + 1,
+                    orbit.rep
+                )));
+            }
+            chosen[o] = c;
+            for (xi, v) in fibers {
+                sym.gather(xi, 0).scatter(v.as_slice(), &mut phi);
             }
         }
         let (image, imag) = ifft2_real(&phi, n1, n2);

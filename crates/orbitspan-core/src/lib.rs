@@ -30,3 +30,4 @@ pub use fit::{fit, Fit};
 pub use model::Model;
 pub use plane_group::PlaneGroup;
 pub use stack::{Image, Stack};
+pub use num_complex::Complex64;

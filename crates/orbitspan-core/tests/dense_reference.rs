@@ -1,0 +1,349 @@
+//! The dense finite-group reference (MATH.md §3), written here independently
+//! of the Fourier-fiber code: Γ as explicit pixel permutations, the pooled
+//! covariance `C = Σ_γ Σ_i (π(γ)f_i)(π(γ)f_i)ᵀ`, isotypic components from a
+//! random central element with complex weights, multiplicities from
+//! characters (Serre, *Linear Representations of Finite Groups*, §2), and
+//! the optimum keeping the top `L (dim ρ)²` eigenvalues per component.
+//! Every one of the 17 plane groups, several lattices, `L = 1, 2, 3`.
+
+use nalgebra::{DMatrix, DVector};
+use num_complex::Complex64;
+use orbitspan_core::fiber::Symmetry;
+use orbitspan_core::fit::{fit_with_path, FiberPath};
+use orbitspan_core::plane_group::{GroupSymbol, PlaneGroup};
+use orbitspan_core::{FitSettings, Image, Silent, Stack};
+
+struct Rng(u64);
+impl Rng {
+    fn next(&mut self) -> f64 {
+        self.0 ^= self.0 << 13;
+        self.0 ^= self.0 >> 7;
+        self.0 ^= self.0 << 17;
+        (self.0 >> 11) as f64 / (1u64 << 53) as f64 * 2.0 - 1.0
+    }
+    fn image(&mut self, n: [usize; 2]) -> Image {
+        Image::new(n[0], n[1], (0..n[0] * n[1]).map(|_| self.next()).collect())
+    }
+}
+
+/// Γ as permutations `x ↦ γ(x)` of the row-major pixel indices.
+fn group_permutations(sym: &Symmetry) -> Vec<Vec<usize>> {
+    let [n1, n2] = sym.lattice().torus();
+    let mut lattice_vectors = Vec::new();
+    for k1 in 0..n1 as i64 {
+        for k2 in 0..n2 as i64 {
+            if sym.lattice().contains([k1, k2]) {
+                lattice_vectors.push([k1, k2]);
+            }
+        }
+    }
+    let mut perms = Vec::new();
+    for op in sym.ops() {
+        for k in &lattice_vectors {
+            let perm = (0..n1 * n2)
+                .map(|x| {
+                    let (x1, x2) = ((x / n2) as i64, (x % n2) as i64);
+                    let y1 = (op.g[0][0] * x1 + op.g[0][1] * x2 + op.t[0] + k[0]).rem_euclid(n1 as i64);
+                    let y2 = (op.g[1][0] * x1 + op.g[1][1] * x2 + op.t[1] + k[1]).rem_euclid(n2 as i64);
+                    (y1 as usize) * n2 + y2 as usize
+                })
+                .collect::<Vec<_>>();
+            perms.push(perm);
+        }
+    }
+    perms
+}
+
+/// `π(γ) f`: `(π(γ)f)(γ(x)) = f(x)`.
+fn act(perm: &[usize], f: &[f64]) -> DVector<f64> {
+    let mut out = DVector::zeros(f.len());
+    for (x, &y) in perm.iter().enumerate() {
+        out[y] = f[x];
+    }
+    out
+}
+
+/// Optimal errors `E(1..=lmax)` by the dense finite-group method.
+fn dense_errors(perms: &[Vec<usize>], images: &[Image], lmax: usize) -> Vec<f64> {
+    let n = images[0].pixels.len();
+    let mut c = DMatrix::<f64>::zeros(n, n);
+    for p in perms {
+        for img in images {
+            let u = act(p, &img.pixels);
+            c.ger(1.0, &u, &u, 1.0);
+        }
+    }
+    let cz = c.map(|v| Complex64::new(v, 0.0));
+    // A = Σ_γ w_γ P_γ with P_γ[γ(x), x] = 1; Z[x, y] = Σ_γ A[γ(x), γ(y)].
+    let mut rng = Rng(0x5eed);
+    let mut a = DMatrix::<Complex64>::zeros(n, n);
+    for p in perms {
+        let w = Complex64::new(rng.next(), rng.next());
+        for x in 0..n {
+            a[(p[x], x)] += w;
+        }
+    }
+    let mut z = DMatrix::<Complex64>::zeros(n, n);
+    for p in perms {
+        for y in 0..n {
+            for x in 0..n {
+                z[(x, y)] += a[(p[x], p[y])];
+            }
+        }
+    }
+    let zh = (&z + z.adjoint()) * Complex64::new(0.5, 0.0);
+    let eig = zh.symmetric_eigen();
+    let mut idx: Vec<usize> = (0..n).collect();
+    idx.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
+    let scale = eig.eigenvalues.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let mut clusters: Vec<Vec<usize>> = Vec::new();
+    for &i in &idx {
+        match clusters.last_mut() {
+            Some(cl) if (eig.eigenvalues[i] - eig.eigenvalues[*cl.last().unwrap()]).abs() < 1e-7 * scale => cl.push(i),
+            _ => clusters.push(vec![i]),
+        }
+    }
+    let mut discarded = vec![0.0; lmax];
+    for cl in clusters {
+        let b = DMatrix::from_fn(n, cl.len(), |r, k| eig.eigenvectors[(r, cl[k])]);
+        // χ_W(γ) = tr(Bᴴ P_γ B), m = sqrt(mean |χ|²), dim ρ = dim W / m.
+        let mut sum_sq = 0.0;
+        for p in perms {
+            let mut chi = Complex64::new(0.0, 0.0);
+            for k in 0..cl.len() {
+                for x in 0..n {
+                    chi += b[(p[x], k)].conj() * b[(x, k)];
+                }
+            }
+            sum_sq += chi.norm_sqr();
+        }
+        let m = (sum_sq / perms.len() as f64).sqrt();
+        assert!((m - m.round()).abs() < 1e-6, "multiplicity {m} not an integer");
+        let dim_rho = cl.len() / m.round() as usize;
+        assert_eq!(dim_rho * m.round() as usize, cl.len());
+        let cw = b.adjoint() * &cz * &b;
+        let mut ev: Vec<f64> = cw.symmetric_eigen().eigenvalues.iter().map(|v| v.max(0.0)).collect();
+        ev.sort_by(|a, b| b.total_cmp(a));
+        for l in 1..=lmax {
+            let keep = l * dim_rho * dim_rho;
+            discarded[l - 1] += ev.iter().skip(keep).sum::<f64>();
+        }
+    }
+    discarded.iter().map(|d| d / perms.len() as f64).collect()
+}
+
+/// Error of projecting the stack onto the span of `vectors` (columns).
+fn span_error(vectors: &DMatrix<f64>, images: &[Image]) -> (f64, Vec<f64>) {
+    let s = vectors * vectors.transpose();
+    let eig = s.clone().symmetric_eigen();
+    let top = eig.eigenvalues.iter().fold(0.0f64, |m, v| m.max(*v));
+    let mut error = 0.0;
+    for img in images {
+        let f = DVector::from_column_slice(&img.pixels);
+        let mut captured = 0.0;
+        for (k, &lam) in eig.eigenvalues.iter().enumerate() {
+            if lam > 1e-9 * top.max(1e-300) {
+                let c = eig.eigenvectors.column(k).dot(&f);
+                captured += c * c;
+            }
+        }
+        error += f.norm_squared() - captured;
+    }
+    (error, eig.eigenvalues.iter().copied().collect())
+}
+
+fn orbit_vectors(perms: &[Vec<usize>], gens: &[Image]) -> DMatrix<f64> {
+    let n = gens[0].pixels.len();
+    let mut cols = Vec::new();
+    for g in gens {
+        for p in perms {
+            cols.push(act(p, &g.pixels));
+        }
+    }
+    if cols.is_empty() {
+        return DMatrix::zeros(n, 0);
+    }
+    DMatrix::from_columns(&cols)
+}
+
+struct Case {
+    symbol: GroupSymbol,
+    n: [usize; 2],
+    cell: [usize; 2],
+}
+
+fn cases() -> Vec<Case> {
+    use GroupSymbol::*;
+    let mut out = Vec::new();
+    for symbol in GroupSymbol::ALL {
+        let shapes: Vec<([usize; 2], [usize; 2])> = match symbol {
+            P1 | P2 => vec![([6, 8], [3, 4]), ([8, 6], [2, 2]), ([5, 4], [5, 4])],
+            Pm | Pmm => vec![([6, 8], [3, 4]), ([8, 4], [4, 2])],
+            Pg | Pmg | Pgg => vec![([8, 8], [4, 4]), ([6, 8], [2, 4]), ([4, 2], [2, 2])],
+            Cm | Cmm => vec![([8, 8], [4, 4]), ([12, 8], [4, 8])],
+            P4 | P4m | P4g => vec![([8, 8], [4, 4]), ([12, 12], [6, 6]), ([6, 6], [2, 2])],
+            P3 | P3m1 | P31m | P6 | P6m => vec![([6, 6], [3, 3]), ([12, 12], [4, 4]), ([6, 6], [2, 2])],
+        };
+        for (n, cell) in shapes {
+            out.push(Case { symbol, n, cell });
+        }
+    }
+    out
+}
+
+fn settings(symbol: GroupSymbol, cell: [usize; 2], l: usize) -> FitSettings {
+    FitSettings {
+        group: PlaneGroup::standard(symbol),
+        cell_rows: cell[0],
+        cell_cols: cell[1],
+        origin: [0, 0],
+        generators: l,
+        band: None,
+        lattice_coords: symbol.is_hexagonal(),
+    }
+}
+
+fn stack_of(images: &[Image]) -> Stack {
+    Stack::new(images.iter().enumerate().map(|(i, im)| (format!("img{i}"), im.clone())).collect()).unwrap()
+}
+
+#[test]
+fn fiber_fit_matches_dense_reference_for_all_17_groups() {
+    let mut rng = Rng(0x1234_5678);
+    let mut summary = Vec::new();
+    for case in cases() {
+        let group = PlaneGroup::standard(case.symbol);
+        let sym = Symmetry::new(case.n, case.cell, &group).unwrap();
+        let perms = group_permutations(&sym);
+        // Γ really is a group of |Λ||G| distinct permutations (closure checked on pairs).
+        assert_eq!(perms.len(), sym.group_size());
+        let set: std::collections::HashSet<&Vec<usize>> = perms.iter().collect();
+        assert_eq!(set.len(), perms.len(), "{:?}: repeated elements", case.symbol);
+        for a in perms.iter().step_by(7) {
+            for b in perms.iter().step_by(5) {
+                let comp: Vec<usize> = (0..a.len()).map(|x| a[b[x]]).collect();
+                assert!(set.contains(&comp), "{:?}: not closed", case.symbol);
+            }
+        }
+        let d = sym.lattice().fiber_len();
+        let lmax = 3.min(d);
+        let images: Vec<Image> = (0..3).map(|_| rng.image(case.n)).collect();
+        let stack = stack_of(&images);
+        let dense = dense_errors(&perms, &images, lmax);
+        let total: f64 = images.iter().map(Image::energy).sum();
+        let mut worst = 0.0f64;
+        let mut previous_gens: Option<Vec<Image>> = None;
+        for l in 1..=lmax {
+            let fit = fit_with_path(&stack, &settings(case.symbol, case.cell, l), FiberPath::Auto, &mut Silent).unwrap();
+            let curve: Vec<f64> = fit.report.error_curve.iter().map(|p| p.error).collect();
+            for k in 0..l {
+                // Relative to the error itself, or to 1e-3 of the total energy when the
+                // error is smaller still (an error of ~1e-15 has no relative digits).
+                let rel = (curve[k] - dense[k]).abs() / dense[k].max(1e-3 * total);
+                worst = worst.max(rel);
+                assert!(rel < 1e-9, "{:?} {:?} cell {:?} L={}: fiber {} dense {}", case.symbol, case.n, case.cell, k + 1, curve[k], dense[k]);
+            }
+            // The L generators really achieve it: dense projection onto their Γ-orbit span.
+            let gens = fit.model.generators().to_vec();
+            let vectors = orbit_vectors(&perms, &gens);
+            let (err, frame_eigs) = span_error(&vectors, &images);
+            assert!(
+                (err - curve[l - 1]).abs() <= 1e-9 * curve[l - 1].max(1e-3 * total),
+                "{:?} L={l}: orbit span error {err} vs reported {}",
+                case.symbol,
+                curve[l - 1]
+            );
+            // Parseval: the frame operator's eigenvalues are 0 or 1.
+            for v in frame_eigs {
+                assert!(v.abs() < 1e-9 || (v - 1.0).abs() < 1e-9, "{:?} L={l}: frame eigenvalue {v}", case.symbol);
+            }
+            // ||φ_l||² |Γ| = dim D_l, and realness.
+            for info in &fit.report.generators {
+                let lhs = info.norm_squared * sym.group_size() as f64;
+                assert!((lhs - info.layer_dimension as f64).abs() < 1e-9 * lhs.max(1.0), "{:?}: {lhs} vs {}", case.symbol, info.layer_dimension);
+                assert!(info.imaginary_part < 1e-9, "{:?}: imaginary part {}", case.symbol, info.imaginary_part);
+            }
+            // Σ residual energies = reported error.
+            let sum: f64 = fit.report.images.iter().map(|e| e.error).sum();
+            assert!((sum - curve[l - 1]).abs() <= 1e-9 * total, "{:?}: residuals {sum} vs {}", case.symbol, curve[l - 1]);
+            // Nested: generators for L are bit-identical to the first L for L+1.
+            if let Some(prev) = &previous_gens {
+                for (a, b) in prev.iter().zip(&gens) {
+                    assert_eq!(a.pixels, b.pixels, "{:?}: generators not nested", case.symbol);
+                }
+            }
+            previous_gens = Some(gens);
+            // E(L) non-increasing.
+            for k in 1..l {
+                assert!(curve[k] <= curve[k - 1] + 1e-12 * total);
+            }
+        }
+        summary.push(format!("{:>5} {:?} cell {:?}: max rel diff {:.2e}", case.symbol.short(), case.n, case.cell, worst));
+    }
+    println!("{}", summary.join("\n"));
+}
+
+#[test]
+fn gram_and_covariance_paths_agree() {
+    let mut rng = Rng(99);
+    for (symbol, n, cell, m) in [
+        (GroupSymbol::P4m, [8, 8], [4, 4], 1),
+        (GroupSymbol::Pgg, [8, 8], [4, 4], 2),
+        (GroupSymbol::Cmm, [8, 8], [4, 4], 1),
+        (GroupSymbol::P6m, [12, 12], [4, 4], 1),
+        (GroupSymbol::Pg, [4, 4], [2, 2], 5),
+    ] {
+        let images: Vec<Image> = (0..m).map(|_| rng.image(n)).collect();
+        let stack = stack_of(&images);
+        let s = settings(symbol, cell, 3.min(cell[0] * cell[1] / if symbol.is_centred() { 2 } else { 1 }));
+        let a = fit_with_path(&stack, &s, FiberPath::Covariance, &mut Silent).unwrap();
+        let b = fit_with_path(&stack, &s, FiberPath::Gram, &mut Silent).unwrap();
+        for (p, q) in a.report.error_curve.iter().zip(&b.report.error_curve) {
+            assert!((p.error - q.error).abs() < 1e-10 * a.report.total_energy, "{symbol:?}: {} vs {}", p.error, q.error);
+        }
+        for (g, h) in a.model.generators().iter().zip(b.model.generators()) {
+            let diff = g.pixels.iter().zip(&h.pixels).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max);
+            assert!(diff < 1e-8, "{symbol:?}: generators differ by {diff}");
+        }
+    }
+}
+
+#[test]
+fn no_random_generators_do_better() {
+    let mut rng = Rng(4242);
+    for (symbol, n, cell) in [
+        (GroupSymbol::P1, [6, 6], [3, 3]),
+        (GroupSymbol::Pg, [8, 4], [4, 2]),
+        (GroupSymbol::P4m, [8, 8], [4, 4]),
+        (GroupSymbol::P3m1, [6, 6], [3, 3]),
+    ] {
+        let group = PlaneGroup::standard(symbol);
+        let sym = Symmetry::new(n, cell, &group).unwrap();
+        let perms = group_permutations(&sym);
+        let images: Vec<Image> = (0..3).map(|_| rng.image(n)).collect();
+        for l in 1..=2 {
+            let fit = fit_with_path(&stack_of(&images), &settings(symbol, cell, l), FiberPath::Auto, &mut Silent).unwrap();
+            let best = fit.report.error_curve[l - 1].error;
+            for _ in 0..150 {
+                let gens: Vec<Image> = (0..l).map(|_| rng.image(n)).collect();
+                let (err, _) = span_error(&orbit_vectors(&perms, &gens), &images);
+                assert!(err >= best - 1e-9 * best, "{symbol:?} L={l}: random {err} beat optimum {best}");
+            }
+        }
+    }
+}
+
+#[test]
+fn image_order_does_not_change_the_generators() {
+    let mut rng = Rng(77);
+    let images: Vec<Image> = (0..4).map(|_| rng.image([8, 8])).collect();
+    let mut reversed = images.clone();
+    reversed.reverse();
+    let s = settings(GroupSymbol::P4g, [4, 4], 3);
+    let a = fit_with_path(&stack_of(&images), &s, FiberPath::Auto, &mut Silent).unwrap();
+    let b = fit_with_path(&stack_of(&reversed), &s, FiberPath::Auto, &mut Silent).unwrap();
+    for (g, h) in a.model.generators().iter().zip(b.model.generators()) {
+        let diff = g.pixels.iter().zip(&h.pixels).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max);
+        assert!(diff < 1e-9, "generators differ by {diff}");
+    }
+}
