@@ -338,3 +338,100 @@ impl PointGroup {
         })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use GroupSymbol::*;
+
+    /// International Tables for Crystallography Vol. A, the 17 plane groups:
+    /// number, full symbol, lattice system, point-group order, and whether the
+    /// group is symmorphic (values from memory of the ITA tables; they are
+    /// the standard textbook facts).
+    const ITA: [(usize, GroupSymbol, &str, LatticeType, usize, bool); 17] = [
+        (1, P1, "p1", LatticeType::Oblique, 1, true),
+        (2, P2, "p2", LatticeType::Oblique, 2, true),
+        (3, Pm, "p1m1", LatticeType::Rectangular, 2, true),
+        (4, Pg, "p1g1", LatticeType::Rectangular, 2, false),
+        (5, Cm, "c1m1", LatticeType::Centred, 2, true),
+        (6, Pmm, "p2mm", LatticeType::Rectangular, 4, true),
+        (7, Pmg, "p2mg", LatticeType::Rectangular, 4, false),
+        (8, Pgg, "p2gg", LatticeType::Rectangular, 4, false),
+        (9, Cmm, "c2mm", LatticeType::Centred, 4, true),
+        (10, P4, "p4", LatticeType::Square, 4, true),
+        (11, P4m, "p4mm", LatticeType::Square, 8, true),
+        (12, P4g, "p4gm", LatticeType::Square, 8, false),
+        (13, P3, "p3", LatticeType::Hexagonal, 3, true),
+        (14, P3m1, "p3m1", LatticeType::Hexagonal, 6, true),
+        (15, P31m, "p31m", LatticeType::Hexagonal, 6, true),
+        (16, P6, "p6", LatticeType::Hexagonal, 6, true),
+        (17, P6m, "p6mm", LatticeType::Hexagonal, 12, true),
+    ];
+
+    #[test]
+    fn all_17_groups_match_international_tables() {
+        for (number, symbol, full, lattice, order, symmorphic) in ITA {
+            assert_eq!(GroupSymbol::ALL[number - 1], symbol);
+            assert_eq!(symbol.full(), full);
+            assert_eq!(symbol.lattice_type(), lattice, "{full}");
+            for setting in [Setting::Standard, Setting::Exchanged] {
+                let pg = PlaneGroup { symbol, setting }.point_group();
+                assert_eq!(pg.order(), order, "{full}: point group order");
+                assert_eq!(pg.is_symmorphic(), symmorphic, "{full}: symmorphic");
+                // every g has det ±1 and the identity comes first
+                assert_eq!(pg.coset_representatives()[0].g, IDENTITY);
+                for op in pg.coset_representatives() {
+                    let det = op.g[0][0] * op.g[1][1] - op.g[0][1] * op.g[1][0];
+                    assert!(det == 1 || det == -1);
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn glide_translations_are_those_of_the_tables() {
+        // ITA general positions (from memory): pg (-x, y+1/2); pmg (-x+1/2, y), (x+1/2, -y);
+        // pgg (-x+1/2, y+1/2), (x+1/2, -y+1/2).
+        let ops = |s: GroupSymbol| PlaneGroup::standard(s).point_group().coset_representatives().to_vec();
+        let has = |s: GroupSymbol, g: IntMatrix, half: [i64; 2]| ops(s).contains(&CellOp { g, half });
+        assert!(has(Pg, [[-1, 0], [0, 1]], [0, 1]));
+        assert!(has(Pmg, [[-1, 0], [0, 1]], [1, 0]));
+        assert!(has(Pmg, [[1, 0], [0, -1]], [1, 0]));
+        assert!(has(Pgg, [[-1, 0], [0, 1]], [1, 1]));
+        assert!(has(Pgg, [[1, 0], [0, -1]], [1, 1]));
+        // exchanged setting of pg: (x+1/2, -y)
+        let pg_ba = PlaneGroup::parse("pg:ba").unwrap().point_group();
+        assert!(pg_ba.coset_representatives().contains(&CellOp { g: [[1, 0], [0, -1]], half: [1, 0] }));
+    }
+
+    /// Is the point `p/3` (lattice coordinates) on a mirror of the group?
+    fn on_mirror(symbol: GroupSymbol, p: [i64; 2]) -> bool {
+        let pg = PlaneGroup::standard(symbol).point_group();
+        pg.coset_representatives().iter().any(|op| {
+            let det = op.g[0][0] * op.g[1][1] - op.g[0][1] * op.g[1][0];
+            let q = mat_vec(&op.g, p);
+            // g p + 3k = p for some integer lattice vector k
+            det == -1 && (q[0] - p[0]).rem_euclid(3) == 0 && (q[1] - p[1]).rem_euclid(3) == 0
+        })
+    }
+
+    #[test]
+    fn p3m1_has_all_threefold_centres_on_mirrors_p31m_not() {
+        // Threefold centres of the 60° cell: (0,0), (1/3,1/3), (2/3,2/3)
+        // (ITA Vol. A symmetry diagrams of p3m1 and p31m).
+        for p in [[1, 1], [2, 2]] {
+            assert!(on_mirror(P3m1, p), "p3m1 centre {p:?}/3 should lie on a mirror");
+            assert!(!on_mirror(P31m, p), "p31m centre {p:?}/3 should not lie on a mirror");
+            assert!(on_mirror(P6m, p));
+        }
+        assert!(on_mirror(P31m, [0, 0]));
+    }
+
+    #[test]
+    fn parse_accepts_short_full_and_exchanged_names() {
+        assert_eq!(PlaneGroup::parse("P4MM").unwrap(), PlaneGroup::standard(P4m));
+        assert_eq!(PlaneGroup::parse("pmg:ba").unwrap().setting, Setting::Exchanged);
+        let msg = PlaneGroup::parse("p5").unwrap_err().to_string();
+        assert!(msg.contains("unknown plane group 'p5'") && msg.contains("p6m"), "{msg}");
+    }
+}
