@@ -415,7 +415,6 @@ mod tests {
         let mut out = Cursor::new(Vec::new());
         let mut encoder = tiff::encoder::TiffEncoder::new(&mut out).unwrap();
         write(&mut encoder);
-        drop(encoder);
         out.into_inner()
     }
 
