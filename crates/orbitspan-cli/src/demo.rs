@@ -11,11 +11,11 @@ use std::io::Write;
 
 pub fn run(args: &DemoArgs, out: &mut dyn Write) -> Result<(), CliError> {
     for stack in demo::all() {
-        let dir = args.out.join(stack.name);
+        let dir = args.out.join(safe_name(stack.name, "example"));
         export::create_dir(&dir)?;
         let mut files = Vec::with_capacity(stack.images.len());
         for (i, (label, image)) in stack.images.iter().enumerate() {
-            let file = file_name(label, i);
+            let file = format!("{}.png", safe_name(label.strip_suffix(".png").unwrap_or(label), &format!("image-{:03}", i + 1)));
             let path = dir.join(&file);
             let (png, clipped) = export::png16(image).map_err(|problem| CliError::path(&path, problem))?;
             if clipped > 0 {
@@ -49,32 +49,32 @@ pub fn run(args: &DemoArgs, out: &mut dyn Write) -> Result<(), CliError> {
     Ok(())
 }
 
-/// A safe file name for image `index` with label `label`: letters, digits,
-/// `-`, `_` and `.` kept, anything else turned into `-`, no leading `-` or
-/// `.` (so it is never taken for an option or a hidden file), ending in `.png`.
-fn file_name(label: &str, index: usize) -> String {
-    let stem = label.strip_suffix(".png").unwrap_or(label);
-    let stem: String = stem
+/// A safe file or folder name: lower-case ASCII letters, digits, `-`, `_`
+/// and `.` kept, anything else (spaces, slashes) turned into `-`, with no
+/// leading `-` or `.` (so it is never taken for an option or a hidden file);
+/// `fallback` if nothing is left.
+fn safe_name(text: &str, fallback: &str) -> String {
+    let name: String = text
         .chars()
-        .map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' { c } else { '-' })
+        .map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' { c.to_ascii_lowercase() } else { '-' })
         .collect();
-    let stem = stem.trim_matches(['.', '-']);
-    if stem.is_empty() {
-        format!("image-{:03}.png", index + 1)
+    let name = name.trim_matches(['.', '-']);
+    if name.is_empty() {
+        fallback.to_string()
     } else {
-        format!("{stem}.png")
+        name.to_string()
     }
 }
 
 #[cfg(test)]
 mod tests {
-    use super::file_name;
+    use super::safe_name;
 
     #[test]
-    fn file_names_are_safe() {
-        assert_eq!(file_name("cloth-01.png", 0), "cloth-01.png");
-        assert_eq!(file_name("cloth 02", 1), "cloth-02.png");
-        assert_eq!(file_name("../up", 2), "up.png");
-        assert_eq!(file_name("..", 3), "image-004.png");
+    fn names_are_safe() {
+        assert_eq!(safe_name("woven cloth", "x"), "woven-cloth");
+        assert_eq!(safe_name("Cloth 02", "x"), "cloth-02");
+        assert_eq!(safe_name("../up", "x"), "up");
+        assert_eq!(safe_name("..", "image-004"), "image-004");
     }
 }

@@ -38,13 +38,21 @@ fn demo_writes_every_stack_as_16_bit_png_with_settings() {
     assert_eq!(run.code, Some(0), "stderr: {}", run.stderr);
 
     let stacks = orbitspan_core::demo::all();
-    assert!(stacks.iter().any(|s| s.name == "woven-cloth"));
+    // The README's example uses this folder.
+    assert!(out.join("woven-cloth").join("settings.json").is_file(), "no woven-cloth folder");
+    let folders: Vec<PathBuf> = std::fs::read_dir(&out).unwrap().map(|e| e.unwrap().path()).collect();
+    assert_eq!(folders.len(), stacks.len());
     for stack in &stacks {
-        let dir = out.join(stack.name);
+        let matching: Vec<&PathBuf> = folders
+            .iter()
+            .filter(|dir| read_json(&dir.join("settings.json"))["name"].as_str() == Some(stack.name))
+            .collect();
+        assert_eq!(matching.len(), 1, "folders for '{}': {matching:?}", stack.name);
+        let dir = matching[0];
         let settings = read_json(&dir.join("settings.json"));
         let files: Vec<&str> = settings["images"].as_array().unwrap().iter().map(|v| v.as_str().unwrap()).collect();
         assert_eq!(files.len(), stack.images.len(), "{}", stack.name);
-        assert_eq!(pngs_in(&dir).len(), stack.images.len(), "{}", stack.name);
+        assert_eq!(pngs_in(dir).len(), stack.images.len(), "{}", stack.name);
         assert_eq!(settings["suggested_settings"]["generators"].as_u64(), Some(stack.suggested.generators as u64));
         let readme = std::fs::read_to_string(dir.join("README.txt")).unwrap();
         assert_eq!(readme.lines().count(), 1, "{readme}");
