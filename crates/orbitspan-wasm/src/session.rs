@@ -1,0 +1,404 @@
+//! [`Session`]: the state the page's worker keeps between messages.
+
+use crate::js_values::{error, from_js, picture, picture_with_values, set, to_js};
+use crate::page_settings::PageSettings;
+use js_sys::{Array, Function, Object, Uint8Array};
+use orbitspan_core::image_io::{self, DecodeLimits};
+use orbitspan_core::plane_group::{GroupSymbol, PlaneGroup, Setting};
+use orbitspan_core::report::Report;
+use orbitspan_core::stack::cut_tiles;
+use orbitspan_core::{demo, fit, npy, picture as pictures, Error, FitSettings, Image, Model, Stack};
+use wasm_bindgen::prelude::*;
+
+type JsResult<T> = Result<T, JsValue>;
+
+/// The stack, the last fit's report and the current model.
+#[wasm_bindgen]
+pub struct Session {
+    images: Vec<(String, Image)>,
+    report: Option<Report>,
+    /// All generators of the last fit or the opened model file.
+    model: Option<Model>,
+    /// The model cut to its first `l` generators when the page chose `l`
+    /// below the full count (the fit's spaces are nested: MATH.md §5).
+    chosen: Option<Model>,
+}
+
+impl Default for Session {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+/// Adapts a JavaScript `progress(stage, fraction)` callback: a `false` return
+/// value (or a throw) asks the core to stop.
+fn progress_callback(callback: &Function) -> impl FnMut(&str, f64) -> bool + '_ {
+    move |stage: &str, fraction: f64| match callback.call2(&JsValue::NULL, &JsValue::from_str(stage), &JsValue::from_f64(fraction)) {
+        Ok(answer) => answer.as_bool() != Some(false),
+        Err(_) => false,
+    }
+}
+
+/// `{ label, height, width }` for each image.
+fn image_list(items: &[(String, Image)]) -> Array {
+    items
+        .iter()
+        .map(|(label, image)| {
+            let o = Object::new();
+            set(&o, "label", label.as_str());
+            set(&o, "height", image.height as u32);
+            set(&o, "width", image.width as u32);
+            JsValue::from(o)
+        })
+        .collect()
+}
+
+/// The plane groups the page offers: every group in its standard setting and,
+/// where it is a different group, with the axes exchanged.
+fn offered_groups() -> Vec<PlaneGroup> {
+    let mut out = Vec::new();
+    for symbol in GroupSymbol::ALL {
+        let standard = PlaneGroup::standard(symbol);
+        out.push(standard);
+        let exchanged = PlaneGroup { symbol, setting: Setting::Exchanged };
+        let (a, b) = (standard.point_group(), exchanged.point_group());
+        let same = a.coset_representatives().iter().all(|op| b.coset_representatives().contains(op));
+        if !same {
+            out.push(exchanged);
+        }
+    }
+    out
+}
+
+#[wasm_bindgen]
+impl Session {
+    #[wasm_bindgen(constructor)]
+    pub fn new() -> Session {
+        Session { images: Vec::new(), report: None, model: None, chosen: None }
+    }
+
+    /// Decodes one file (PNG, JPEG, TIFF; pages of a multi-page TIFF become
+    /// several images), optionally cut into `tile_rows x tile_cols` tiles
+    /// (0 = no tiling), and adds its images to the stack. All or nothing: an
+    /// image of another size than the stack's refuses the whole file. Returns
+    /// `[{ label, height, width }]` of the added images.
+    #[wasm_bindgen(js_name = addFile)]
+    pub fn add_file(&mut self, name: &str, bytes: &[u8], tile_rows: usize, tile_cols: usize) -> JsResult<Array> {
+        let decoded = image_io::decode(name, bytes, &DecodeLimits::default()).map_err(error)?;
+        let items = if tile_rows == 0 && tile_cols == 0 {
+            decoded
+        } else {
+            let mut tiles = Vec::new();
+            for (label, image) in &decoded {
+                tiles.extend(cut_tiles(label, image, tile_rows, tile_cols).map_err(error)?);
+            }
+            tiles
+        };
+        self.push_checked(items)
+    }
+
+    /// Adds the invented example stack (core `demo::woven_cloth`). Returns
+    /// `{ name, description, settings, images: [{ label, height, width }] }`
+    /// with the example's suggested settings.
+    #[wasm_bindgen(js_name = addExample)]
+    pub fn add_example(&mut self) -> JsResult<Object> {
+        let example = demo::woven_cloth();
+        let settings = PageSettings::from_core(&example.suggested);
+        let images = self.push_checked(example.images)?;
+        let out = Object::new();
+        set(&out, "name", example.name);
+        set(&out, "description", example.description);
+        set(&out, "settings", to_js(&settings)?);
+        set(&out, "images", images);
+        Ok(out)
+    }
+
+    fn push_checked(&mut self, items: Vec<(String, Image)>) -> JsResult<Array> {
+        for (label, image) in &items {
+            // The core's stack check (size, finite pixels), against the stack's first image.
+            let mut pair = Vec::with_capacity(2);
+            if let Some((first_label, first)) = self.images.first() {
+                pair.push((first_label.clone(), first.clone()));
+            }
+            pair.push((label.clone(), image.clone()));
+            Stack::new(pair).map_err(error)?;
+        }
+        let added = image_list(&items);
+        self.images.extend(items);
+        Ok(added)
+    }
+
+    /// Removes image `index` from the stack.
+    #[wasm_bindgen(js_name = removeImage)]
+    pub fn remove_image(&mut self, index: usize) -> JsResult<()> {
+        if index >= self.images.len() {
+            return Err(error(Error::input(format!("no image {index}: the stack has {}", self.images.len()))));
+        }
+        self.images.remove(index);
+        Ok(())
+    }
+
+    /// Empties the stack (the report and the model stay).
+    #[wasm_bindgen(js_name = clearImages)]
+    pub fn clear_images(&mut self) {
+        self.images.clear();
+    }
+
+    /// `[{ label, height, width }]` of the stack.
+    pub fn images(&self) -> Array {
+        image_list(&self.images)
+    }
+
+    /// Image `index` as a grey picture (percentile stretch).
+    pub fn thumbnail(&self, index: usize) -> JsResult<Object> {
+        let image = self.image(index)?;
+        Ok(picture(image.height, image.width, &pictures::grey_rgba(image)))
+    }
+
+    fn image(&self, index: usize) -> JsResult<&Image> {
+        self.images
+            .get(index)
+            .map(|(_, image)| image)
+            .ok_or_else(|| error(Error::input(format!("no image {index}: the stack has {}", self.images.len()))))
+    }
+
+    fn stack(&self) -> JsResult<Stack> {
+        Stack::new(self.images.clone()).map_err(error)
+    }
+
+    /// Checks `settings` against the stack's image size (core `fit::validate`).
+    /// Returns `{ problem, groups: [{ name, full, ok, reason }] }`: `problem`
+    /// is a message about the cell, origin or generator count that holds for
+    /// every group (or `null`); each offered group says whether it can be used
+    /// with these settings and, if not, why. With an empty stack nothing can
+    /// be checked: every group is offered and `problem` says so.
+    #[wasm_bindgen(js_name = checkSettings)]
+    pub fn check_settings(&self, settings: JsValue) -> JsResult<Object> {
+        let page: PageSettings = from_js(settings, "settings")?;
+        let base = FitSettings { group: PlaneGroup::standard(GroupSymbol::P1), ..page.to_core().map_err(error)? };
+        let size = self.images.first().map(|(_, i)| (i.height, i.width));
+        let problem = match size {
+            None => Some("add images to check the settings against their size".to_string()),
+            Some((h, w)) => fit::validate(h, w, &base).err().map(|e| e.to_string()),
+        };
+        let groups: Array = offered_groups()
+            .into_iter()
+            .map(|group| {
+                let reason = match size {
+                    Some((h, w)) if problem.is_none() => {
+                        fit::validate(h, w, &FitSettings { group, ..base.clone() }).err().map(|e| e.to_string())
+                    }
+                    _ => None,
+                };
+                let o = Object::new();
+                set(&o, "name", group.name());
+                let full = match group.setting {
+                    Setting::Standard => group.symbol.full().to_string(),
+                    Setting::Exchanged => format!("{}, axes exchanged", group.symbol.full()),
+                };
+                set(&o, "full", full);
+                set(&o, "ok", reason.is_none());
+                set(&o, "reason", reason.map_or(JsValue::NULL, |r| JsValue::from_str(&r)));
+                JsValue::from(o)
+            })
+            .collect();
+        let out = Object::new();
+        set(&out, "problem", problem.map_or(JsValue::NULL, |p| JsValue::from_str(&p)));
+        set(&out, "groups", groups);
+        Ok(out)
+    }
+
+    /// Fits the stack (core `fit::fit`), calling `progress(stage, fraction)`
+    /// as it goes (return `false` to cancel). Keeps the model and returns the
+    /// report (the `report.json` structure as a plain object).
+    pub fn fit(&mut self, settings: JsValue, progress: &Function) -> JsResult<JsValue> {
+        let page: PageSettings = from_js(settings, "settings")?;
+        let settings = page.to_core().map_err(error)?;
+        let stack = self.stack()?;
+        let result = fit::fit(&stack, &settings, &mut progress_callback(progress)).map_err(error)?;
+        let report = to_js(&result.report)?;
+        self.report = Some(result.report);
+        self.model = Some(result.model);
+        self.chosen = None;
+        Ok(report)
+    }
+
+    /// The last fit's report as `report.json` text (as the command line writes it).
+    #[wasm_bindgen(js_name = reportJson)]
+    pub fn report_json(&self) -> JsResult<String> {
+        let report = self.report.as_ref().ok_or_else(|| error(Error::input("no fit yet: fit the stack first")))?;
+        serde_json::to_string_pretty(report).map_err(|e| error(Error::Internal(format!("report: {e}"))))
+    }
+
+    /// Takes back the report of an earlier fit (the object [`Session::fit`]
+    /// returned) after the page restarted its worker; the model comes back
+    /// with [`Session::open_model`].
+    #[wasm_bindgen(js_name = restoreReport)]
+    pub fn restore_report(&mut self, report: JsValue) -> JsResult<()> {
+        self.report = Some(from_js(report, "earlier report")?);
+        Ok(())
+    }
+
+    fn full_model(&self) -> JsResult<&Model> {
+        self.model.as_ref().ok_or_else(|| error(Error::input("no model yet: fit the stack or open a model file")))
+    }
+
+    fn current_model(&self) -> JsResult<&Model> {
+        match &self.chosen {
+            Some(model) => Ok(model),
+            None => self.full_model(),
+        }
+    }
+
+    /// Uses only the first `count` generators of the model from now on
+    /// (pictures, saving, applying). Returns the new `{ settings, height, width, generators }`.
+    #[wasm_bindgen(js_name = chooseGenerators)]
+    pub fn choose_generators(&mut self, count: usize) -> JsResult<JsValue> {
+        let full = self.full_model()?;
+        let all = full.generators().len();
+        if count == 0 || count > all {
+            return Err(error(Error::input(format!("choose between 1 and {all} generators, not {count}"))));
+        }
+        self.chosen = if count == all {
+            None
+        } else {
+            let settings = FitSettings { generators: count, ..full.settings().clone() };
+            Some(Model::new(settings, full.height(), full.width(), full.generators()[..count].to_vec()).map_err(error)?)
+        };
+        self.model_info()
+    }
+
+    /// `{ settings, height, width, generators }` of the current model.
+    #[wasm_bindgen(js_name = modelInfo)]
+    pub fn model_info(&self) -> JsResult<JsValue> {
+        let model = self.current_model()?;
+        let out = Object::new();
+        set(&out, "settings", to_js(&PageSettings::from_core(model.settings()))?);
+        set(&out, "height", model.height() as u32);
+        set(&out, "width", model.width() as u32);
+        set(&out, "generators", model.generators().len() as u32);
+        Ok(out.into())
+    }
+
+    /// Pictures of image `index`: `{ original, fitted, residual, problem }`;
+    /// each picture is `{ height, width, rgba, values }`. `fitted` and
+    /// `residual` (residual = original − fitted, on a diverging scale) are
+    /// `null` without a model or when the model does not fit the image, and
+    /// `problem` then says why.
+    pub fn pictures(&self, index: usize) -> JsResult<Object> {
+        let image = self.image(index)?;
+        let out = Object::new();
+        set(&out, "original", picture_with_values(image, &pictures::grey_rgba(image)));
+        let projected = self.current_model().and_then(|m| m.project(image).map_err(error));
+        match projected {
+            Ok(fitted) => {
+                let residual = residual_of(image, &fitted);
+                set(&out, "fitted", picture_with_values(&fitted, &pictures::grey_rgba(&fitted)));
+                set(&out, "residual", picture_with_values(&residual, &pictures::diverging_rgba(&residual)));
+                set(&out, "problem", JsValue::NULL);
+            }
+            Err(problem) => {
+                set(&out, "fitted", JsValue::NULL);
+                set(&out, "residual", JsValue::NULL);
+                set(&out, "problem", js_sys::Reflect::get(&problem, &"message".into()).unwrap_or(JsValue::NULL));
+            }
+        }
+        Ok(out)
+    }
+
+    /// Pictures of all generators of the full model: `[{ height, width, rgba, values }]`.
+    #[wasm_bindgen(js_name = generatorPictures)]
+    pub fn generator_pictures(&self) -> JsResult<Array> {
+        let model = self.full_model()?;
+        Ok(model
+            .generators()
+            .iter()
+            .map(|g| JsValue::from(picture_with_values(g, &pictures::grey_rgba(g))))
+            .collect())
+    }
+
+    /// The current model in the model file format (`.orbitspan-model`).
+    #[wasm_bindgen(js_name = modelBytes)]
+    pub fn model_bytes(&self) -> JsResult<Uint8Array> {
+        Ok(Uint8Array::from(self.current_model()?.to_bytes().as_slice()))
+    }
+
+    /// Opens a model file; it becomes the current model (the last fit's
+    /// report is kept). Returns `{ settings, height, width, generators }`.
+    #[wasm_bindgen(js_name = openModel)]
+    pub fn open_model(&mut self, name: &str, bytes: &[u8]) -> JsResult<JsValue> {
+        let model = Model::from_bytes(name, bytes).map_err(error)?;
+        self.model = Some(model);
+        self.chosen = None;
+        self.model_info()
+    }
+
+    /// Applies the current model to the stack: per-image
+    /// `[{ file, energy, error, relative_error }]` (core `Model::evaluate`).
+    #[wasm_bindgen(js_name = applyModel)]
+    pub fn apply_model(&self, progress: &Function) -> JsResult<JsValue> {
+        let model = self.current_model()?;
+        let errors = model.evaluate(&self.stack()?, &mut progress_callback(progress)).map_err(error)?;
+        to_js(&errors)
+    }
+
+    /// NumPy `.npy` bytes (`<f8`, C order) of `generators` (shape `(L, H, W)`
+    /// of the current model), or of the stack's `approximations` or
+    /// `residuals` under the current model (shape `(N, H, W)`).
+    pub fn npy(&self, kind: &str) -> JsResult<Uint8Array> {
+        let model = self.current_model()?;
+        let images: Vec<Image> = match kind {
+            "generators" => model.generators().to_vec(),
+            "approximations" | "residuals" => {
+                let mut out = Vec::with_capacity(self.images.len());
+                for (_, image) in &self.images {
+                    let fitted = model.project(image).map_err(error)?;
+                    out.push(if kind == "residuals" { residual_of(image, &fitted) } else { fitted });
+                }
+                out
+            }
+            other => return Err(error(Error::input(format!("unknown array '{other}'")))),
+        };
+        let (h, w) = (model.height(), model.width());
+        let data: Vec<f64> = images.iter().flat_map(|i| i.pixels.iter().copied()).collect();
+        Ok(Uint8Array::from(npy::encode_f64(&[images.len(), h, w], &data).as_slice()))
+    }
+
+    /// PNG bytes of one picture: `original`, `fitted` or `residual` of image
+    /// `index`, or `generator` number `index` (0-based) of the current model.
+    pub fn png(&self, kind: &str, index: usize) -> JsResult<Uint8Array> {
+        let (image, rgba) = match kind {
+            "original" => {
+                let image = self.image(index)?.clone();
+                let rgba = pictures::grey_rgba(&image);
+                (image, rgba)
+            }
+            "fitted" | "residual" => {
+                let image = self.image(index)?;
+                let fitted = self.current_model()?.project(image).map_err(error)?;
+                if kind == "fitted" {
+                    let rgba = pictures::grey_rgba(&fitted);
+                    (fitted, rgba)
+                } else {
+                    let residual = residual_of(image, &fitted);
+                    let rgba = pictures::diverging_rgba(&residual);
+                    (residual, rgba)
+                }
+            }
+            "generator" => {
+                let g = self.current_model()?.generators().get(index).cloned().ok_or_else(|| {
+                    error(Error::input(format!("no generator {}: the model has fewer", index + 1)))
+                })?;
+                let rgba = pictures::grey_rgba(&g);
+                (g, rgba)
+            }
+            other => return Err(error(Error::input(format!("unknown picture '{other}'")))),
+        };
+        Ok(Uint8Array::from(pictures::png_rgba(image.height, image.width, &rgba).as_slice()))
+    }
+}
+
+/// `f − P_V f`, pixel by pixel.
+fn residual_of(image: &Image, fitted: &Image) -> Image {
+    Image::new(image.height, image.width, image.pixels.iter().zip(&fitted.pixels).map(|(f, p)| f - p).collect())
+}

@@ -1,0 +1,263 @@
+//! The facade through its JavaScript interface (run in Node by
+//! wasm-bindgen-test-runner): the numbers must be the core's, errors must
+//! name the file, and the session must keep its state across failures.
+#![cfg(target_arch = "wasm32")]
+
+use js_sys::{Array, Function, Reflect, Uint8Array};
+use orbitspan_core::report::{ImageError, Report};
+use orbitspan_core::{fit, npy, FitSettings, Image, Silent, Stack};
+use orbitspan_wasm::{PageSettings, Session};
+use wasm_bindgen::{JsCast, JsValue};
+use wasm_bindgen_test::wasm_bindgen_test;
+
+const SIDE: usize = 8;
+
+/// Three 8 x 8 images of 16-bit levels from a fixed linear congruential
+/// sequence (Numerical Recipes' constants), so the data has no symmetry.
+fn tiny_levels() -> Vec<(String, Vec<u16>)> {
+    let mut x: u32 = 12345;
+    (1..=3)
+        .map(|i| {
+            let levels = (0..SIDE * SIDE)
+                .map(|_| {
+                    x = x.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+                    (x >> 16) as u16
+                })
+                .collect();
+            (format!("tile-{i}.png"), levels)
+        })
+        .collect()
+}
+
+fn png16(height: usize, width: usize, levels: &[u16]) -> Vec<u8> {
+    let buffer = image::ImageBuffer::<image::Luma<u16>, Vec<u16>>::from_raw(width as u32, height as u32, levels.to_vec()).unwrap();
+    let mut out = std::io::Cursor::new(Vec::new());
+    buffer.write_to(&mut out, image::ImageFormat::Png).unwrap();
+    out.into_inner()
+}
+
+/// The same images as the core reads them: `value / 65535` (image_io docs).
+fn tiny_stack() -> Stack {
+    Stack::new(
+        tiny_levels()
+            .into_iter()
+            .map(|(name, levels)| (name, Image::new(SIDE, SIDE, levels.iter().map(|&v| f64::from(v) / 65535.0).collect())))
+            .collect(),
+    )
+    .unwrap()
+}
+
+fn session_with_tiny_stack() -> Session {
+    let mut session = Session::new();
+    for (name, levels) in tiny_levels() {
+        session.add_file(&name, &png16(SIDE, SIDE, &levels), 0, 0).unwrap();
+    }
+    session
+}
+
+fn page_settings(group: &str, cell_rows: usize, cell_cols: usize, generators: usize) -> PageSettings {
+    PageSettings { group: group.into(), cell_rows, cell_cols, origin: [0, 0], generators, band: None, lattice_coords: false }
+}
+
+fn js(settings: &PageSettings) -> JsValue {
+    serde_wasm_bindgen::to_value(settings).unwrap()
+}
+
+fn keep_going() -> Function {
+    Function::new_with_args("stage, fraction", "return true;")
+}
+
+fn get(value: &JsValue, key: &str) -> JsValue {
+    Reflect::get(value, &JsValue::from_str(key)).unwrap()
+}
+
+fn error_name_and_message(error: &JsValue) -> (String, String) {
+    (get(error, "name").as_string().unwrap(), get(error, "message").as_string().unwrap())
+}
+
+fn assert_close(a: f64, b: f64, tolerance: f64, what: &str) {
+    let scale = a.abs().max(b.abs()).max(1e-300);
+    assert!((a - b).abs() <= tolerance * scale, "{what}: {a} vs {b}");
+}
+
+#[wasm_bindgen_test]
+fn a_fit_through_the_facade_gives_the_cores_numbers() {
+    let mut session = session_with_tiny_stack();
+    let settings = page_settings("p4m", 4, 4, 3);
+    let report: Report = serde_wasm_bindgen::from_value(session.fit(js(&settings), &keep_going()).unwrap()).unwrap();
+    let core: FitSettings = settings.to_core().unwrap();
+    let expected = fit(&tiny_stack(), &core, &mut Silent).unwrap().report;
+
+    assert_eq!(report.error_curve.len(), 3);
+    assert_close(report.total_energy, expected.total_energy, 1e-12, "total energy");
+    for (a, b) in report.error_curve.iter().zip(&expected.error_curve) {
+        assert_eq!(a.generators, b.generators);
+        assert_close(a.error, b.error, 1e-12, "curve error");
+        assert_close(a.relative_error, b.relative_error, 1e-12, "curve relative error");
+    }
+    // Random data is far from p4m-invariant: more generators must help.
+    assert!(report.error_curve[0].error > report.error_curve[2].error * 1.01);
+    let files: Vec<&str> = report.images.iter().map(|e| e.file.as_str()).collect();
+    assert_eq!(files, ["tile-1.png", "tile-2.png", "tile-3.png"]);
+    for (a, b) in report.images.iter().zip(&expected.images) {
+        assert_close(a.error, b.error, 1e-12, &a.file);
+    }
+    // report.json is the text the command line writes for the same report.
+    assert_eq!(session.report_json().unwrap(), serde_json::to_string_pretty(&expected).unwrap());
+}
+
+#[wasm_bindgen_test]
+fn a_corrupt_file_names_the_file_and_the_stack_stays() {
+    let mut session = session_with_tiny_stack();
+    let mut broken = b"\x89PNG\r\n\x1a\n".to_vec();
+    broken.extend_from_slice(b"this is not a png stream at all");
+    let error = session.add_file("broken.png", &broken, 0, 0).unwrap_err();
+    let (name, message) = error_name_and_message(&error);
+    assert_eq!(name, "BadInput");
+    assert!(message.contains("broken.png"), "{message}");
+    assert_eq!(session.images().length(), 3);
+    // The good images still fit.
+    assert!(session.fit(js(&page_settings("p1", 8, 8, 2)), &keep_going()).is_ok());
+}
+
+#[wasm_bindgen_test]
+fn an_image_of_another_size_refuses_its_whole_file() {
+    let mut session = session_with_tiny_stack();
+    let narrow = png16(8, 6, &[1000; 48]);
+    let error = session.add_file("narrow.png", &narrow, 0, 0).unwrap_err();
+    let (name, message) = error_name_and_message(&error);
+    assert_eq!(name, "BadInput");
+    assert!(message.contains("narrow.png") && message.contains("8x6"), "{message}");
+    assert_eq!(session.images().length(), 3);
+}
+
+#[wasm_bindgen_test]
+fn tiles_are_cut_and_labelled() {
+    let mut session = Session::new();
+    let (_, levels) = tiny_levels().remove(0);
+    let added = session.add_file("big.png", &png16(SIDE, SIDE, &levels), 4, 4).unwrap();
+    assert_eq!(added.length(), 4);
+    let labels: Vec<String> = added.iter().map(|o| get(&o, "label").as_string().unwrap()).collect();
+    assert_eq!(labels, ["big.png@0,0", "big.png@0,4", "big.png@4,0", "big.png@4,4"]);
+    let pictures = session.pictures(3).unwrap();
+    let values: Vec<f64> = get(&get(&pictures, "original"), "values").dyn_into::<js_sys::Float64Array>().unwrap().to_vec();
+    // Tile (4, 4): its first value is pixel (4, 4) of the file.
+    assert_eq!(values[0], f64::from(levels[4 * SIDE + 4]) / 65535.0);
+}
+
+#[wasm_bindgen_test]
+fn cancelling_keeps_the_stack_and_the_next_fit_runs() {
+    let mut session = session_with_tiny_stack();
+    let stop = Function::new_with_args("stage, fraction", "return false;");
+    let error = session.fit(js(&page_settings("p4m", 4, 4, 2)), &stop).unwrap_err();
+    assert_eq!(error_name_and_message(&error).0, "Cancelled");
+    assert_eq!(session.images().length(), 3);
+    let report: Report =
+        serde_wasm_bindgen::from_value(session.fit(js(&page_settings("p4m", 4, 4, 2)), &keep_going()).unwrap()).unwrap();
+    assert_eq!(report.error_curve.len(), 2);
+}
+
+#[wasm_bindgen_test]
+fn settings_check_disables_groups_with_a_reason() {
+    let session = session_with_tiny_stack();
+    let check = session.check_settings(js(&page_settings("p1", 8, 4, 2))).unwrap();
+    assert!(get(&check, "problem").is_null());
+    let groups: Array = get(&check, "groups").dyn_into().unwrap();
+    let find = |name: &str| groups.iter().find(|g| get(g, "name").as_string().as_deref() == Some(name)).unwrap();
+    // A 8 x 4 cell is not square: the p4 family cannot be used; pmm can.
+    for name in ["p4", "p4m", "p4g"] {
+        let g = find(name);
+        assert_eq!(get(&g, "ok").as_bool(), Some(false), "{name}");
+        assert!(!get(&g, "reason").as_string().unwrap().is_empty());
+    }
+    assert_eq!(get(&find("pmm"), "ok").as_bool(), Some(true));
+    assert_eq!(get(&find("pmm"), "full").as_string().unwrap(), "p2mm");
+    // Hexagonal groups need lattice coordinates.
+    let p6 = find("p6");
+    assert_eq!(get(&p6, "ok").as_bool(), Some(false));
+    assert!(get(&p6, "reason").as_string().unwrap().contains("lattice coordinates"));
+    // pmg differs with its axes exchanged, pmm does not.
+    assert!(groups.iter().any(|g| get(&g, "name").as_string().as_deref() == Some("pmg:ba")));
+    assert!(!groups.iter().any(|g| get(&g, "name").as_string().as_deref() == Some("pmm:ba")));
+    // A cell that does not divide the image is a problem for every group.
+    let bad = session.check_settings(js(&page_settings("p1", 3, 3, 2))).unwrap();
+    let problem = get(&bad, "problem").as_string().unwrap();
+    assert!(problem.contains('3'), "{problem}");
+}
+
+#[wasm_bindgen_test]
+fn a_saved_model_applied_in_a_new_session_gives_the_fits_errors() {
+    let mut session = session_with_tiny_stack();
+    let report: Report =
+        serde_wasm_bindgen::from_value(session.fit(js(&page_settings("pmm", 4, 4, 3)), &keep_going()).unwrap()).unwrap();
+    let bytes = session.model_bytes().unwrap().to_vec();
+
+    let mut fresh = session_with_tiny_stack();
+    let info = fresh.open_model("saved.orbitspan-model", &bytes).unwrap();
+    assert_eq!(get(&info, "generators").as_f64(), Some(3.0));
+    let errors: Vec<ImageError> = serde_wasm_bindgen::from_value(fresh.apply_model(&keep_going()).unwrap()).unwrap();
+    assert_eq!(errors.len(), 3);
+    for (a, b) in errors.iter().zip(&report.images) {
+        assert_eq!(a.file, b.file);
+        assert_close(a.error, b.error, 1e-9, &a.file);
+    }
+    let broken = fresh.open_model("broken.orbitspan-model", b"not a model").unwrap_err();
+    let (name, message) = error_name_and_message(&broken);
+    assert_eq!(name, "BadInput");
+    assert!(message.contains("broken.orbitspan-model"), "{message}");
+}
+
+#[wasm_bindgen_test]
+fn fewer_chosen_generators_give_that_point_of_the_curve() {
+    let mut session = session_with_tiny_stack();
+    let report: Report =
+        serde_wasm_bindgen::from_value(session.fit(js(&page_settings("p2", 4, 4, 3)), &keep_going()).unwrap()).unwrap();
+    session.choose_generators(1).unwrap();
+    let errors: Vec<ImageError> = serde_wasm_bindgen::from_value(session.apply_model(&keep_going()).unwrap()).unwrap();
+    let total: f64 = errors.iter().map(|e| e.error).sum();
+    assert_close(total, report.error_curve[0].error, 1e-9, "E(1)");
+    assert!(session.choose_generators(4).is_err());
+    // Saving now saves the chosen generator only.
+    let saved = orbitspan_core::Model::from_bytes("current", &session.model_bytes().unwrap().to_vec()).unwrap();
+    assert_eq!(saved.generators().len(), 1);
+}
+
+#[wasm_bindgen_test]
+fn pictures_and_arrays_hold_original_fitted_and_residual() {
+    let mut session = session_with_tiny_stack();
+    session.fit(js(&page_settings("p4", 4, 4, 2)), &keep_going()).unwrap();
+    let pictures = session.pictures(1).unwrap();
+    assert!(get(&pictures, "problem").is_null());
+    let values = |kind: &str| -> Vec<f64> {
+        get(&get(&pictures, kind), "values").dyn_into::<js_sys::Float64Array>().unwrap().to_vec()
+    };
+    let (original, fitted, residual) = (values("original"), values("fitted"), values("residual"));
+    let stack = tiny_stack();
+    assert_eq!(original, stack.images()[1].pixels);
+    for i in 0..original.len() {
+        assert!((fitted[i] + residual[i] - original[i]).abs() < 1e-12);
+    }
+    assert!(residual.iter().any(|v| v.abs() > 1e-3), "random data leaves a residual");
+    let rgba = get(&get(&pictures, "residual"), "rgba").dyn_into::<js_sys::Uint8ClampedArray>().unwrap();
+    assert_eq!(rgba.length() as usize, 4 * SIDE * SIDE);
+
+    let npy_bytes: Uint8Array = session.npy("residuals").unwrap();
+    let (shape, data) = npy::decode_f64("residuals.npy", &npy_bytes.to_vec()).unwrap();
+    assert_eq!(shape, [3, SIDE, SIDE]);
+    assert_eq!(&data[SIDE * SIDE..2 * SIDE * SIDE], residual.as_slice());
+    let png = session.png("residual", 1).unwrap().to_vec();
+    assert!(png.starts_with(b"\x89PNG\r\n\x1a\n"));
+}
+
+#[wasm_bindgen_test]
+fn the_example_stack_comes_with_its_settings() {
+    let mut session = Session::new();
+    let example = session.add_example().unwrap();
+    let settings: PageSettings = serde_wasm_bindgen::from_value(get(&example, "settings")).unwrap();
+    let demo = orbitspan_core::demo::woven_cloth();
+    assert_eq!(settings, PageSettings::from_core(&demo.suggested));
+    let images: Array = get(&example, "images").dyn_into().unwrap();
+    assert_eq!(images.length() as usize, demo.images.len());
+    assert_eq!(get(&images.get(0), "label").as_string().unwrap(), demo.images[0].0);
+    assert_eq!(get(&images.get(0), "height").as_f64(), Some(demo.images[0].1.height as f64));
+}
