@@ -17,6 +17,9 @@ pub mod band;
 pub mod fit;
 pub mod frame;
 pub mod model;
+pub mod lattice_detect;
+pub mod resample;
+pub mod survey;
 // Input and output.
 pub mod image_io;
 pub mod npy;

@@ -347,3 +347,29 @@ fn image_order_does_not_change_the_generators() {
         assert!(diff < 1e-9, "generators differ by {diff}");
     }
 }
+
+#[test]
+fn hexagonal_fit_on_resampled_images_matches_dense_reference() {
+    // Images with a hexagonal lattice at 19° to the pixels, resampled onto a
+    // small lattice-coordinate grid (2 x 2 cells of 3 x 3 samples), then
+    // fitted with each hexagonal group: fiber method vs dense reference.
+    use orbitspan_core::resample::LatticeGrid;
+    let (len, ang) = (7.4f64, 19f64.to_radians());
+    let a1 = [len * ang.cos(), len * ang.sin()];
+    let a2 = [len * (ang + std::f64::consts::FRAC_PI_3).cos(), len * (ang + std::f64::consts::FRAC_PI_3).sin()];
+    let mut rng = Rng(31);
+    let grid = LatticeGrid::fit_inside(24, 24, [a1, a2], Some([3, 3]), true, false).unwrap();
+    let grid = LatticeGrid { cells: [2, 2], ..grid };
+    let images: Vec<Image> = (0..3).map(|_| grid.to_lattice(&rng.image([24, 24]))).collect();
+    assert_eq!([images[0].height, images[0].width], [6, 6]);
+    for symbol in [GroupSymbol::P3, GroupSymbol::P3m1, GroupSymbol::P31m, GroupSymbol::P6, GroupSymbol::P6m] {
+        let sym = Symmetry::new([6, 6], [3, 3], &PlaneGroup::standard(symbol)).unwrap();
+        let perms = group_permutations(&sym);
+        let dense = dense_errors(&perms, &images, 3);
+        let fit = fit_with_path(&stack_of(&images), &settings(symbol, [3, 3], 3), FiberPath::Auto, &mut Silent).unwrap();
+        let total: f64 = images.iter().map(Image::energy).sum();
+        for (p, d) in fit.report.error_curve.iter().zip(&dense) {
+            assert!((p.error - d).abs() <= 1e-9 * d.max(1e-3 * total), "{symbol:?}: {} vs {d}", p.error);
+        }
+    }
+}
