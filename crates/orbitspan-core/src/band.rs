@@ -201,11 +201,11 @@ mod tests {
     fn knapsack_matches_brute_force() {
         // Tiny instances: sizes 1, 2, 4 with pseudo-random energies; compare
         // with enumeration of all subsets.
-        let mut rng = crate::isotypic::SplitMix(7);
+        let mut rng = crate::prng::SplitMix64(7);
         for trial in 0..40 {
             let count = 3 + trial % 8;
             let orbits: Vec<Vec<usize>> = (0..count).map(|i| vec![0; [1, 2, 4][(i * 7 + trial) % 3]]).collect();
-            let energy: Vec<f64> = (0..count).map(|_| rng.symmetric().abs()).collect();
+            let energy: Vec<f64> = (0..count).map(|_| rng.uniform()).collect();
             let total: usize = orbits.iter().map(Vec::len).sum();
             for budget in 0..=total {
                 let got = best_orbits(&orbits, &energy, budget);

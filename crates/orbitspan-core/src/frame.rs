@@ -19,7 +19,7 @@
 use crate::error::{Error, Result};
 use crate::fiber::{Orbit, Symmetry};
 use crate::fit::{check, OrbitSolution};
-use crate::isotypic::SplitMix;
+use crate::prng::SplitMix64;
 use crate::progress::Progress;
 use crate::spectrum::{fft2, ifft2_real};
 use crate::stack::Image;
@@ -35,8 +35,8 @@ pub(crate) struct Generator {
 
 /// Fixed reference images `e`: deterministic pseudo-random values, one per seed.
 fn reference_image(n1: usize, n2: usize, which: u64) -> Image {
-    let mut rng = SplitMix(0x0b17_5ba2_0000_0001 ^ which.wrapping_mul(0x9E37_79B9_7F4A_7C15));
-    Image::new(n1, n2, (0..n1 * n2).map(|_| rng.symmetric()).collect())
+    let mut rng = SplitMix64(0x0b17_5ba2_0000_0001 ^ which.wrapping_mul(0x9E37_79B9_7F4A_7C15));
+    Image::new(n1, n2, (0..n1 * n2).map(|_| rng.between(-1.0, 1.0)).collect())
 }
 
 /// How many reference images an orbit may try, and the conditioning

@@ -12,6 +12,7 @@
 //! `√2` times an integer.
 
 use crate::error::{Error, Result};
+use crate::prng::SplitMix64;
 use nalgebra::DMatrix;
 use num_complex::Complex64;
 
@@ -54,23 +55,6 @@ pub struct Block {
     pub multiplicity: usize,
 }
 
-/// A small deterministic generator for the weights (splitmix64).
-pub(crate) struct SplitMix(pub u64);
-
-impl SplitMix {
-    pub(crate) fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-    /// Uniform in [-1, 1).
-    pub(crate) fn symmetric(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 / (1u64 << 52) as f64 - 1.0
-    }
-}
-
 /// The isotypic components of the representation `h ↦ ops[h]` on `C^n`.
 /// `ops` must be closed under products up to phases (a projective
 /// representation) and contain the identity. Deterministic: fixed weights,
@@ -90,10 +74,10 @@ pub fn isotypic_blocks(n: usize, ops: &[Monomial]) -> Result<Vec<Block>> {
 }
 
 fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<Vec<Block>, String> {
-    let mut rng = SplitMix(0x6f72_6269_7473_7061 ^ attempt.wrapping_mul(0x1234_5678_9abc_def1));
+    let mut rng = SplitMix64(0x6f72_6269_7473_7061 ^ attempt.wrapping_mul(0x1234_5678_9abc_def1));
     let mut a = DMatrix::<Complex64>::zeros(n, n);
     for op in ops {
-        let w = Complex64::new(rng.symmetric(), rng.symmetric());
+        let w = Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0));
         for r in 0..n {
             a[(r, op.perm[r])] += w * op.phase[r];
         }

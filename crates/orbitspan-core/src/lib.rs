@@ -4,6 +4,7 @@
 //! one concept of it. No wasm, web or command-line code lives here.
 
 pub mod error;
+pub mod prng;
 pub mod progress;
 pub mod settings;
 pub mod stack;
