@@ -3,7 +3,7 @@
 
 use crate::args::ApplyArgs;
 use crate::export;
-use crate::failure::CliError;
+use crate::failure::{printed, CliError};
 use crate::input::read_stack;
 use crate::progress_bar::ProgressBar;
 use crate::tables;
@@ -19,20 +19,20 @@ pub fn run(args: &ApplyArgs, out: &mut dyn Write) -> Result<(), CliError> {
     let images = model.evaluate(&stack, &mut progress)?;
     progress.finish();
 
-    writeln!(
-        out,
-        "{} images of {} x {} pixels against the model {} ({}, {} generators)",
-        stack.len(),
-        stack.height(),
-        stack.width(),
-        args.model.display(),
-        tables::describe_settings(model.settings()),
-        model.generators().len()
-    )
-    .map_err(CliError::Stdout)?;
-    writeln!(out).map_err(CliError::Stdout)?;
-    tables::print_images(out, &images).map_err(CliError::Stdout)?;
-    out.flush().map_err(CliError::Stdout)?;
+    printed(
+        writeln!(
+            out,
+            "{} images of {} x {} pixels against the model {} ({}, {} generators)\n",
+            stack.len(),
+            stack.height(),
+            stack.width(),
+            args.model.display(),
+            tables::describe_settings(model.settings()),
+            model.generators().len()
+        )
+        .and_then(|()| tables::print_images(out, &images))
+        .and_then(|()| out.flush()),
+    )?;
 
     let total_energy: f64 = images.iter().map(|e| e.energy).sum();
     let total_error: f64 = images.iter().map(|e| e.error).sum();

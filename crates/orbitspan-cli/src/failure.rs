@@ -47,6 +47,16 @@ impl CliError {
     }
 }
 
+/// The outcome of printing to stdout. A closed pipe (`orbitspan fit ... |
+/// head`) is not an error: the reader has seen what it wanted, and the files
+/// asked for with `--out` are still written.
+pub fn printed(result: std::io::Result<()>) -> Result<(), CliError> {
+    match result {
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        other => other.map_err(CliError::Stdout),
+    }
+}
+
 impl fmt::Display for CliError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
@@ -77,6 +87,13 @@ mod tests {
         assert_eq!(CliError::from(Error::input("cell 7 does not divide 128")).exit_code(), 2);
         assert_eq!(CliError::path(Path::new("out"), "cannot create folder").exit_code(), 2);
         assert_eq!(CliError::from(Error::Internal("check failed".into())).exit_code(), 1);
+    }
+
+    #[test]
+    fn a_closed_pipe_is_not_an_error() {
+        use std::io::{Error as IoError, ErrorKind};
+        assert!(printed(Err(IoError::from(ErrorKind::BrokenPipe))).is_ok());
+        assert_eq!(printed(Err(IoError::from(ErrorKind::StorageFull))).unwrap_err().exit_code(), 1);
     }
 
     #[test]

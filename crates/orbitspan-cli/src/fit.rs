@@ -2,7 +2,7 @@
 
 use crate::args::FitArgs;
 use crate::export;
-use crate::failure::CliError;
+use crate::failure::{printed, CliError};
 use crate::input::read_stack;
 use crate::progress_bar::ProgressBar;
 use crate::tables;
@@ -16,8 +16,7 @@ pub fn run(args: &FitArgs, out: &mut dyn Write) -> Result<(), CliError> {
     let settings = args.settings(stack.height(), stack.width());
     let result = fit(&stack, &settings, &mut progress)?;
     progress.finish();
-    tables::print_fit(out, &result.report).map_err(CliError::Stdout)?;
-    out.flush().map_err(CliError::Stdout)?;
+    printed(tables::print_fit(out, &result.report).and_then(|()| out.flush()))?;
 
     if let Some(dir) = &args.out {
         export::create_dir(dir)?;

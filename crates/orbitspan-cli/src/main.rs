@@ -46,9 +46,7 @@ fn run(arguments: Vec<std::ffi::OsString>) -> Result<(), CliError> {
         Command::Fit(a) => fit::run(&a, &mut out),
         Command::Apply(a) => apply::run(&a, &mut out),
         Command::Demo(a) => demo::run(&a, &mut out),
-        Command::Help(text) => write!(out, "{text}").map_err(CliError::Stdout),
-        Command::Version => {
-            writeln!(out, "orbitspan {}", env!("CARGO_PKG_VERSION")).map_err(CliError::Stdout)
-        }
+        Command::Help(text) => failure::printed(write!(out, "{text}")),
+        Command::Version => failure::printed(writeln!(out, "orbitspan {}", env!("CARGO_PKG_VERSION"))),
     }
 }
