@@ -17,4 +17,4 @@ mod page_settings;
 mod session;
 
 pub use page_settings::PageSettings;
-pub use session::Session;
+pub use session::{residual_legend, Session};

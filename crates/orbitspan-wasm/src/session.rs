@@ -398,6 +398,15 @@ impl Session {
     }
 }
 
+/// The residual colour scale as a picture one pixel high: core
+/// `diverging_rgba` of values running evenly from −1 (left) to 1 (right).
+#[wasm_bindgen(js_name = residualLegend)]
+pub fn residual_legend(width: usize) -> Object {
+    let width = width.max(2);
+    let ramp: Vec<f64> = (0..width).map(|i| -1.0 + 2.0 * i as f64 / (width - 1) as f64).collect();
+    picture(1, width, &pictures::diverging_rgba(&Image::new(1, width, ramp)))
+}
+
 /// `f − P_V f`, pixel by pixel.
 fn residual_of(image: &Image, fitted: &Image) -> Image {
     Image::new(image.height, image.width, image.pixels.iter().zip(&fitted.pixels).map(|(f, p)| f - p).collect())

@@ -261,3 +261,17 @@ fn the_example_stack_comes_with_its_settings() {
     assert_eq!(get(&images.get(0), "label").as_string().unwrap(), demo.images[0].0);
     assert_eq!(get(&images.get(0), "height").as_f64(), Some(demo.images[0].1.height as f64));
 }
+
+#[wasm_bindgen_test]
+fn the_residual_legend_runs_from_blue_through_white_to_red() {
+    let legend = orbitspan_wasm::residual_legend(101);
+    assert_eq!(get(&legend, "width").as_f64(), Some(101.0));
+    let rgba = get(&legend, "rgba").dyn_into::<js_sys::Uint8ClampedArray>().unwrap().to_vec();
+    assert_eq!(rgba.len(), 4 * 101);
+    let pixel = |i: usize| [rgba[4 * i], rgba[4 * i + 1], rgba[4 * i + 2]];
+    // Zero is white and the ends are the core's blue (negative) and red (positive).
+    assert_eq!(pixel(50), [255, 255, 255]);
+    let (left, right) = (pixel(0), pixel(100));
+    assert!(left[2] > left[0] + 50, "left end is blue: {left:?}");
+    assert!(right[0] > right[2] + 50, "right end is red: {right:?}");
+}

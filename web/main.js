@@ -1,0 +1,435 @@
+// The page's controller: keeps the state, talks to the worker, and asks each
+// view to draw. All computation happens in the worker (worker.js).
+
+import { WorkerClient } from './worker-client.js';
+import { settingsFromFragment, settingsToFragment } from './settings-link.js';
+import { downloadFile, readFile } from './download.js';
+import { makeZip } from './zip.js';
+import { csv } from './format.js';
+import { createStackCard } from './views/stack-card.js';
+import { createSymmetryCard } from './views/symmetry-card.js';
+import { createFitCard } from './views/fit-card.js';
+import { createResultsCard } from './views/results-card.js';
+import { createViewer } from './views/viewer.js';
+import { createCurve } from './views/curve.js';
+import { createGallery } from './views/gallery.js';
+import { createTopbar } from './views/topbar.js';
+
+const client = new WorkerClient();
+
+const state = {
+  files: [], // [{ name, status: 'reading' | 'added' | 'failed', message, images }]
+  images: [], // the stack: [{ label, height, width }]
+  thumbnails: [], // one picture per image
+  selected: 0,
+  example: null, // { name, description } once the example stack is used
+  settings: { group: 'p1', cell_rows: null, cell_cols: null, origin: [0, 0], generators: 4, band: null, lattice_coords: false },
+  settingsProblem: null, // a malformed input, said plainly
+  check: null, // { problem, groups } for the current settings and image size
+  canFit: false,
+  busy: null, // null | 'files' | 'fit' | 'apply' | 'model'
+  progress: null, // { stage, fraction }
+  fit: null, // { report, seconds } of the last finished fit
+  model: null, // { info: { settings, height, width, generators }, source: 'fit' | file name }
+  modelBytes: null,
+  generators: null, // pictures of the model's generators
+  chosen: null, // generators in use
+  errors: null, // { rows: [{ file, energy, error, relative_error }], caption }
+  fitStatus: null,
+  fitStatusIsProblem: false,
+  modelStatus: null,
+  modelStatusIsProblem: false,
+};
+
+const cards = {
+  stack: document.getElementById('card-stack'),
+  symmetry: document.getElementById('card-symmetry'),
+  fit: document.getElementById('card-fit'),
+  results: document.getElementById('card-results'),
+};
+
+const stackCard = createStackCard({ onFiles: addFiles, onExample: useExample, onRemove: removeEntry, onClear: clearStack });
+const symmetryCard = createSymmetryCard({ onChange: settingsChanged });
+const fitCard = createFitCard({ onChange: settingsChanged, onFit: runFit, onCancel: cancelFit });
+const resultsCard = createResultsCard({ onSelect: select, onOpenModel: openModel, onApply: applyModel });
+const viewer = createViewer({ onSelect: select });
+const curve = createCurve({ onChoose: chooseGenerators });
+const gallery = createGallery();
+const topbar = createTopbar({ onSaveModel: saveModel, onExport: exportFiles, settingsLink: () => location.href });
+
+function render() {
+  const busy = state.busy !== null;
+  for (const id of ['add-images', 'use-example']) document.getElementById(id).disabled = busy;
+  stackCard.render(state);
+  symmetryCard.render(state);
+  fitCard.render(state);
+  resultsCard.render(state);
+  viewer.render(state);
+  curve.render(state.fit?.report.error_curve, state.model?.source === 'fit' ? state.chosen : null);
+  gallery.render(state.generators, state.model?.source === 'fit' ? state.fit?.report.generators : null, state.chosen, state.model?.source);
+  topbar.render(state);
+}
+
+const describeError = (error) => String(error?.message ?? error);
+
+// ---- settings -------------------------------------------------------------
+
+function readSettings() {
+  const s = { ...symmetryCard.read(), ...fitCard.read() };
+  const wholeAtLeast = (value, least) => Number.isInteger(value) && value >= least;
+  let problem = null;
+  if (!wholeAtLeast(s.cell_rows, 1) || !wholeAtLeast(s.cell_cols, 1)) problem = 'Give the unit cell as two whole numbers of pixels (height and width), at least 1.';
+  else if (!wholeAtLeast(s.origin[0], 0) || !wholeAtLeast(s.origin[1], 0)) problem = 'The origin is a pixel: two whole numbers, 0 or more.';
+  else if (!wholeAtLeast(s.generators, 1)) problem = 'The number of generators L must be a whole number, at least 1.';
+  else if (s.band?.kind === 'frequencies' && !wholeAtLeast(s.band.value, 1)) problem = 'The band limit M is a whole number of frequencies, at least 1.';
+  else if (s.band?.kind === 'radius' && !(Number.isFinite(s.band.value) && s.band.value > 0)) problem = 'The band radius R must be a number above 0.';
+  state.settings = s;
+  state.settingsProblem = problem;
+}
+
+let checkSequence = 0;
+async function settingsChanged() {
+  readSettings();
+  if (!state.settingsProblem) history.replaceState(null, '', settingsToFragment(state.settings));
+  const sequence = ++checkSequence;
+  // Placeholders keep the request well formed while an input is being typed.
+  const s = state.settings;
+  const probe = state.settingsProblem
+    ? { ...s, cell_rows: s.cell_rows > 0 ? s.cell_rows : 1, cell_cols: s.cell_cols > 0 ? s.cell_cols : 1, origin: [0, 0], generators: 1, band: null }
+    : s;
+  render();
+  try {
+    const check = await client.request('check', { settings: probe });
+    if (sequence !== checkSequence) return;
+    state.check = check;
+  } catch (error) {
+    if (sequence !== checkSequence || error.name === 'Cancelled') return;
+    state.check = null;
+    state.settingsProblem = describeError(error);
+  }
+  const group = state.check?.groups.find((g) => g.name === state.settings.group);
+  state.canFit = state.images.length > 0 && !state.settingsProblem && !state.check?.problem && Boolean(group?.ok);
+  render();
+}
+
+function applySettings(settings) {
+  symmetryCard.write(settings);
+  fitCard.write(settings);
+}
+
+// ---- the stack ------------------------------------------------------------
+
+async function stackChanged(images, from) {
+  const before = state.images.length;
+  state.images = images;
+  if (state.selected >= images.length) state.selected = Math.max(0, images.length - 1);
+  if (from !== null && images.length > from) {
+    try {
+      state.thumbnails = [...state.thumbnails.slice(0, from), ...(await client.request('thumbnails', { from }))];
+    } catch (error) {
+      if (error.name !== 'Cancelled') state.fitStatus = describeError(error);
+    }
+  }
+  if (before === 0 && images.length > 0) {
+    const s = symmetryCard.read();
+    if (!s.cell_rows || !s.cell_cols) symmetryCard.write({ cell_rows: images[0].height, cell_cols: images[0].width });
+  }
+  await settingsChanged();
+  await refreshPictures();
+}
+
+async function addFiles(fileList) {
+  let tile;
+  try {
+    tile = stackCard.tile();
+  } catch (error) {
+    state.files.push(...fileList.map((f) => ({ name: f.name, status: 'failed', message: describeError(error) })));
+    render();
+    return;
+  }
+  const entries = fileList.map((f) => ({ name: f.name, status: 'reading', images: [] }));
+  state.files.push(...entries);
+  state.busy = 'files';
+  render();
+  const from = state.images.length;
+  try {
+    const files = await Promise.all(fileList.map(readFile));
+    const result = await client.request('add-files', { files, tile });
+    entries.forEach((entry, i) => {
+      const added = result.added.find((a) => a.file === files[i].name && !a.used);
+      const failed = result.failed.find((f) => f.file === files[i].name && !f.used);
+      if (added) {
+        added.used = true;
+        entry.status = 'added';
+        entry.images = added.images;
+      } else if (failed) {
+        failed.used = true;
+        entry.status = 'failed';
+        entry.message = failed.message;
+      }
+    });
+    const kept = files.filter((_, i) => entries[i].status === 'added');
+    if (kept.length) client.remember('add-files', { files: kept, tile });
+    state.busy = null;
+    await stackChanged(result.images, from);
+  } catch (error) {
+    for (const entry of entries) {
+      if (entry.status === 'reading') Object.assign(entry, { status: 'failed', message: describeError(error) });
+    }
+    state.busy = null;
+    render();
+  }
+}
+
+async function useExample() {
+  state.busy = 'files';
+  render();
+  const from = state.images.length;
+  try {
+    const example = await client.request('add-example');
+    client.remember('add-example');
+    state.files.push({ name: `Example: ${example.name}`, status: 'added', images: example.added });
+    state.example = { name: example.name, description: example.description };
+    applySettings(example.settings);
+    state.busy = null;
+    await stackChanged(example.images, from);
+    cards.symmetry.open = true;
+    cards.fit.open = true;
+  } catch (error) {
+    state.busy = null;
+    state.files.push({ name: 'Example stack', status: 'failed', message: describeError(error) });
+    render();
+  }
+}
+
+async function removeEntry(entry) {
+  const index = state.files.indexOf(entry);
+  if (entry.status !== 'added') {
+    state.files.splice(index, 1);
+    render();
+    return;
+  }
+  const start = state.files.slice(0, index).filter((e) => e.status === 'added').reduce((n, e) => n + e.images.length, 0);
+  let images = state.images;
+  for (let i = start + entry.images.length - 1; i >= start; i--) {
+    images = (await client.request('remove-image', { index: i })).images;
+    client.remember('remove-image', { index: i });
+  }
+  state.files.splice(index, 1);
+  state.thumbnails.splice(start, entry.images.length);
+  if (entry.name.startsWith('Example: ')) state.example = null;
+  await stackChanged(images, null);
+}
+
+async function clearStack() {
+  const result = await client.request('clear');
+  client.remember('clear');
+  state.files = [];
+  state.thumbnails = [];
+  state.example = null;
+  state.selected = 0;
+  await stackChanged(result.images, null);
+}
+
+function select(index) {
+  if (index < 0 || index >= state.images.length) return;
+  state.selected = index;
+  render();
+  refreshPictures();
+}
+
+let pictureSequence = 0;
+async function refreshPictures() {
+  const sequence = ++pictureSequence;
+  if (!state.images.length) {
+    viewer.show(null);
+    render();
+    return;
+  }
+  try {
+    const pictures = await client.request('pictures', { index: state.selected });
+    if (sequence === pictureSequence) viewer.show(pictures);
+  } catch (error) {
+    if (error.name !== 'Cancelled' && sequence === pictureSequence) viewer.show({ problem: describeError(error) });
+  }
+  render();
+}
+
+// ---- fitting --------------------------------------------------------------
+
+async function runFit() {
+  readSettings();
+  if (!state.canFit || state.settingsProblem) return;
+  const settings = state.settings;
+  state.busy = 'fit';
+  state.progress = null;
+  state.fitStatus = null;
+  state.fitStatusIsProblem = false;
+  render();
+  try {
+    const result = await client.request('fit', { settings }, (progress) => {
+      state.progress = progress;
+      fitCard.render(state);
+    });
+    state.fit = { report: result.report, seconds: result.seconds };
+    state.model = { info: result.model, source: 'fit' };
+    state.modelBytes = result.modelBytes;
+    state.generators = result.generators;
+    state.chosen = result.model.generators;
+    state.errors = { rows: result.report.images, caption: `Error per image with L = ${state.chosen}` };
+    state.modelStatus = null;
+    client.remember('open-model', { name: 'fit', bytes: result.modelBytes.slice().buffer });
+    client.remember('restore-report', { report: result.report });
+    state.busy = null;
+    state.fitStatus = `Fitted ${state.images.length} image${state.images.length === 1 ? '' : 's'} in ${result.seconds.toFixed(2)} s.`;
+    cards.stack.open = false;
+    cards.symmetry.open = false;
+    cards.results.open = true;
+    await refreshPictures();
+  } catch (error) {
+    if (error.name === 'Cancelled') return;
+    state.busy = null;
+    state.fitStatus = describeError(error);
+    state.fitStatusIsProblem = true;
+    render();
+  }
+}
+
+async function cancelFit() {
+  state.busy = null;
+  state.progress = null;
+  state.fitStatus = 'Stopping…';
+  render();
+  try {
+    await client.cancel();
+    state.fitStatus = 'Fit cancelled. Your images, settings and earlier results are kept.';
+  } catch (error) {
+    state.fitStatus = `The worker could not be restarted: ${describeError(error)}. Reload the page.`;
+    state.fitStatusIsProblem = true;
+  }
+  await settingsChanged();
+  fitCard.focusFit();
+}
+
+async function chooseGenerators(count) {
+  if (state.busy !== null || state.model?.source !== 'fit' || count === state.chosen) return;
+  state.busy = 'model';
+  render();
+  try {
+    const result = await client.request('choose', { count });
+    client.remember('choose', { count });
+    state.model = { info: result.model, source: 'fit' };
+    state.modelBytes = result.modelBytes;
+    state.chosen = count;
+    const full = state.fit.report.error_curve.length;
+    if (count === full) {
+      state.errors = { rows: state.fit.report.images, caption: `Error per image with L = ${count}` };
+    } else {
+      const applied = await client.request('apply');
+      state.errors = { rows: applied.errors, caption: `Error per image with L = ${count}` };
+    }
+    state.modelStatus = `Using the first ${count} of ${full} generators: pictures, saving and export follow.`;
+    state.modelStatusIsProblem = false;
+  } catch (error) {
+    if (error.name === 'Cancelled') return;
+    state.modelStatus = describeError(error);
+    state.modelStatusIsProblem = true;
+  }
+  state.busy = null;
+  await refreshPictures();
+}
+
+// ---- models ---------------------------------------------------------------
+
+async function openModel(file) {
+  state.busy = 'model';
+  render();
+  try {
+    const { name, bytes } = await readFile(file);
+    const result = await client.request('open-model', { name, bytes });
+    client.remember('open-model', { name, bytes });
+    state.model = { info: result.model, source: name };
+    state.modelBytes = new Uint8Array(bytes);
+    state.generators = result.generators;
+    state.chosen = result.model.generators;
+    state.errors = null;
+    state.modelStatus = `Opened ${name}. Apply it to the stack to get the error per image.`;
+    state.modelStatusIsProblem = false;
+  } catch (error) {
+    state.modelStatus = describeError(error);
+    state.modelStatusIsProblem = true;
+  }
+  state.busy = null;
+  await refreshPictures();
+}
+
+async function applyModel() {
+  state.busy = 'apply';
+  render();
+  try {
+    const result = await client.request('apply', {}, () => {});
+    const from = state.model.source === 'fit' ? `this fit (L = ${state.chosen})` : state.model.source;
+    state.errors = { rows: result.errors, caption: `Error per image under the model from ${from}` };
+    state.modelStatus = `Applied to ${result.errors.length} image${result.errors.length === 1 ? '' : 's'} in ${result.seconds.toFixed(2)} s.`;
+    state.modelStatusIsProblem = false;
+    cards.results.open = true;
+  } catch (error) {
+    if (error.name === 'Cancelled') return;
+    state.modelStatus = describeError(error);
+    state.modelStatusIsProblem = true;
+  }
+  state.busy = null;
+  render();
+}
+
+function modelFileName() {
+  const s = state.model.info.settings;
+  return `orbitspan-${s.group.replace(':', '-')}-L${state.model.info.generators}.orbitspan-model`;
+}
+
+function saveModel() {
+  if (state.modelBytes) downloadFile(modelFileName(), state.modelBytes);
+}
+
+// Returns a sentence saying what was downloaded.
+async function exportFiles(parts) {
+  const result = await client.request('export', { parts: { pictures: parts.pictures, arrays: parts.arrays, report: parts.report && Boolean(state.fit) } });
+  const files = result.files;
+  const encode = (text) => new TextEncoder().encode(text);
+  if (parts.tables && state.fit) {
+    const rows = state.fit.report.error_curve.map((p) => [p.generators, p.error, p.relative_error]);
+    files.push({ name: 'error-curve.csv', bytes: encode(csv(['generators', 'error', 'relative_error'], rows)) });
+  }
+  if (parts.tables && state.errors) {
+    const rows = state.errors.rows.map((r) => [r.file, r.energy, r.error, r.relative_error]);
+    files.push({ name: 'image-errors.csv', bytes: encode(csv(['file', 'energy', 'error', 'relative_error'], rows)) });
+  }
+  if (!files.length) return 'Nothing to export yet.';
+  if (files.length === 1) {
+    downloadFile(files[0].name, files[0].bytes);
+    return `Downloaded ${files[0].name}.`;
+  }
+  downloadFile('orbitspan-export.zip', makeZip(files), 'application/zip');
+  return `Downloaded orbitspan-export.zip (${files.length} files).`;
+}
+
+// ---- start ----------------------------------------------------------------
+
+function restoreFromLink() {
+  const fromLink = settingsFromFragment(location.hash);
+  if (Object.keys(fromLink).length) applySettings(fromLink);
+}
+
+async function drawLegend() {
+  const canvas = document.getElementById('residual-legend');
+  const picture = await client.request('legend', { width: canvas.width });
+  canvas.getContext('2d').putImageData(new ImageData(picture.rgba, picture.width, picture.height), 0, 0);
+}
+
+window.addEventListener('hashchange', () => {
+  restoreFromLink();
+  settingsChanged();
+});
+restoreFromLink();
+settingsChanged();
+drawLegend();
