@@ -8,6 +8,9 @@
 //! - [`honeycomb_lattice_coords`]: a honeycomb monolayer already sampled in
 //!   lattice coordinates (axes along the two lattice vectors at 60°), p6m
 //!   about the origin with a 12 x 12 sample cell, with noise and a vacancy.
+//! - [`honeycomb_micrograph`]: the same kind of monolayer as a micrograph:
+//!   the hexagonal lattice at 17° to the pixels with a 9.6-pixel spacing,
+//!   noise and a vacancy; the lattice must be measured and resampled.
 
 use crate::plane_group::{GroupSymbol, PlaneGroup};
 use crate::settings::FitSettings;
@@ -21,17 +24,24 @@ pub struct DemoStack {
     pub description: &'static str,
     pub images: Vec<(String, Image)>,
     pub suggested: FitSettings,
+    /// For stacks whose lattice is not on the pixel grid: the true lattice
+    /// vectors `a1`, `a2` in pixels `(row, column)` used to make it (so
+    /// detection can be checked); `suggested` then applies on the grid
+    /// resampled onto that lattice.
+    pub lattice: Option<[[f64; 2]; 2]>,
 }
 
 /// Both example stacks.
 pub fn all() -> Vec<DemoStack> {
-    vec![woven_cloth(), honeycomb_lattice_coords()]
+    vec![woven_cloth(), honeycomb_lattice_coords(), honeycomb_micrograph()]
 }
 
-/// Adds Gaussian noise of standard deviation `sigma` and clamps to [0, 1].
+/// Adds Gaussian noise of standard deviation `sigma`, clamps to [0, 1] and
+/// rounds to the 16-bit levels `k / 65535`, so that a 16-bit PNG of the
+/// stack holds exactly the values fitted in memory.
 fn add_noise(image: &mut Image, sigma: f64, rng: &mut SplitMix64) {
     for v in &mut image.pixels {
-        *v = (*v + sigma * rng.normal()).clamp(0.0, 1.0);
+        *v = ((*v + sigma * rng.normal()).clamp(0.0, 1.0) * 65535.0).round() / 65535.0;
     }
 }
 
@@ -221,6 +231,7 @@ pub fn woven_cloth() -> DemoStack {
                       spot (slub) in cloth-5 and cloth-8.",
         images,
         suggested: woven_settings(),
+        lattice: None,
     }
 }
 
@@ -347,6 +358,89 @@ pub fn honeycomb_lattice_coords() -> DemoStack {
                       honeycomb-3.",
         images,
         suggested: honeycomb_settings(),
+        lattice: None,
+    }
+}
+
+/// Lattice constant (pixels), angle of `a1` from the row axis (degrees),
+/// and the pixel position of a hexagon centre, for [`honeycomb_micrograph`].
+const MICROGRAPH_SPACING: f64 = 9.6;
+const MICROGRAPH_ANGLE: f64 = 17.0;
+const MICROGRAPH_CENTRE: [f64; 2] = [37.3, 52.6];
+const MICROGRAPH_SIZE: usize = 160;
+const MICROGRAPH_NOISE: f64 = 0.04;
+
+/// The micrograph's lattice vectors `a1`, `a2` (60° apart) in pixels.
+pub fn micrograph_lattice() -> [[f64; 2]; 2] {
+    let (t1, t2) = (MICROGRAPH_ANGLE.to_radians(), (MICROGRAPH_ANGLE + 60.0).to_radians());
+    let a = MICROGRAPH_SPACING;
+    [[a * t1.cos(), a * t1.sin()], [a * t2.cos(), a * t2.sin()]]
+}
+
+/// Noise-free honeycomb intensity at a pixel, optionally without the atom
+/// at lattice position `vacancy`.
+fn micrograph_value(r: f64, c: f64, vacancy: Option<[f64; 2]>) -> f64 {
+    let [a1, a2] = micrograph_lattice();
+    let det = a1[0] * a2[1] - a1[1] * a2[0];
+    let (dr, dc) = (r - MICROGRAPH_CENTRE[0], c - MICROGRAPH_CENTRE[1]);
+    let u = (dr * a2[1] - dc * a2[0]) / det;
+    let v = (a1[0] * dc - a1[1] * dr) / det;
+    let (fu, fv) = (u - u.floor(), v - v.floor());
+    let mut sum = 0.0;
+    for p in HONEYCOMB_ATOMS {
+        for k in -2..=2 {
+            for l in -2..=2 {
+                sum += atom(fu - p[0] - f64::from(k), fv - p[1] - f64::from(l));
+            }
+        }
+    }
+    if let Some(q) = vacancy {
+        sum -= atom(u - q[0], v - q[1]);
+    }
+    HONEYCOMB_BACKGROUND + HONEYCOMB_ATOM * sum
+}
+
+/// Honeycomb monolayer micrograph stack: 6 images of 160 x 160 pixels, a
+/// hexagonal lattice of spacing 9.6 px with `a1` at 17° to the rows (not on
+/// the pixel grid), two atoms per cell as in [`honeycomb_lattice_coords`]
+/// (p6m about a hexagon centre at pixel (37.3, 52.6)), Gaussian noise of
+/// standard deviation 0.04 clamped to [0, 1], and one vacancy near the
+/// middle of `micrograph-3`. Suggested: detect the lattice, resample with
+/// about 10 samples per cell, fit p6m with 1 generator in a band of the 61
+/// most energetic frequencies (the lattice peaks), so that the vacancy stays
+/// in the residual.
+pub fn honeycomb_micrograph() -> DemoStack {
+    let n = MICROGRAPH_SIZE;
+    let [a1, a2] = micrograph_lattice();
+    let det = a1[0] * a2[1] - a1[1] * a2[0];
+    // the atom at (1/3, 1/3) of the cell containing the image centre
+    let (dr, dc) = (n as f64 / 2.0 - MICROGRAPH_CENTRE[0], n as f64 / 2.0 - MICROGRAPH_CENTRE[1]);
+    let (u, v) = ((dr * a2[1] - dc * a2[0]) / det, (a1[0] * dc - a1[1] * dr) / det);
+    let vacancy = [u.floor() + 1.0 / 3.0, v.floor() + 1.0 / 3.0];
+    let images = (1..=HONEYCOMB_IMAGES)
+        .map(|k| {
+            let mut rng = SplitMix64(0x6d69_6372_6f00_0000 + k as u64);
+            let hole = (k == VACANCY_IMAGE).then_some(vacancy);
+            let px = (0..n * n).map(|x| micrograph_value((x / n) as f64, (x % n) as f64, hole)).collect();
+            let mut image = Image::new(n, n, px);
+            add_noise(&mut image, MICROGRAPH_NOISE, &mut rng);
+            (format!("micrograph-{k}"), image)
+        })
+        .collect();
+    DemoStack {
+        name: "honeycomb-micrograph",
+        description: "Honeycomb monolayer micrographs: hexagonal lattice at 17° to the pixels, 9.6 px spacing, noise, one vacancy in micrograph-3",
+        images,
+        suggested: FitSettings {
+            group: PlaneGroup::standard(GroupSymbol::P6m),
+            cell_rows: 10,
+            cell_cols: 10,
+            origin: [0, 0],
+            generators: 1,
+            band: Some(crate::settings::BandSpec::Frequencies(61)),
+            lattice_coords: true,
+        },
+        lattice: Some(micrograph_lattice()),
     }
 }
 
