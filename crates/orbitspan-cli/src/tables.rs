@@ -1,16 +1,8 @@
 //! The tables printed on stdout: the error curve and the per-image errors.
 
-use orbitspan_core::report::{ImageError, Report};
+use orbitspan_core::report::{psnr_db, ImageError, Report};
 use orbitspan_core::FitSettings;
 use std::io::{self, Write};
-
-/// Peak signal-to-noise ratio of a whole stack in dB, with peak value 1.0
-/// (intensities are scaled to [0, 1]): `10 log10(pixels · 1² / error)`,
-/// where `pixels` counts all pixels of all images and `error` is the summed
-/// squared error. Infinite for a zero error.
-pub fn psnr_db(error: f64, pixels: usize) -> f64 {
-    10.0 * (pixels as f64 / error).log10()
-}
 
 /// The fit summary, the error curve and the per-image errors.
 pub fn print_fit(out: &mut dyn Write, report: &Report) -> io::Result<()> {
@@ -126,15 +118,6 @@ fn decibels(v: f64) -> String {
 mod tests {
     use super::*;
 
-    #[test]
-    fn psnr_of_known_values() {
-        // 100 pixels, summed squared error 0.01: mean squared error 1e-4, 40 dB.
-        assert!((psnr_db(0.01, 100) - 40.0).abs() < 1e-12);
-        // 65536 pixels with error 65536 * 0.25: MSE 0.25, 10 log10(4) dB.
-        assert!((psnr_db(16384.0, 65536) - 10.0 * 4f64.log10()).abs() < 1e-12);
-        assert_eq!(psnr_db(0.0, 10), f64::INFINITY);
-        assert_eq!(decibels(f64::INFINITY), "inf");
-    }
 
     #[test]
     fn tiny_shares_stay_visible() {

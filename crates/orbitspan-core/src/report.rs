@@ -7,6 +7,14 @@
 use crate::settings::FitSettings;
 use serde::{Deserialize, Serialize};
 
+/// Peak signal-to-noise ratio of a whole stack in dB, with peak value 1.0
+/// (intensities are scaled to [0, 1]): `10 log10(pixels · 1² / error)`,
+/// where `pixels` counts all pixels of all images and `error` is the summed
+/// squared error. Infinite for a zero error.
+pub fn psnr_db(error: f64, pixels: usize) -> f64 {
+    10.0 * (pixels as f64 / error).log10()
+}
+
 /// One point of the error curve: the optimal error with `generators` generators.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct CurvePoint {
@@ -73,4 +81,17 @@ pub struct Report {
     pub images: Vec<ImageError>,
     pub band: Option<BandReport>,
     pub generators: Vec<GeneratorInfo>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::psnr_db;
+
+    #[test]
+    fn psnr_of_known_values() {
+        // mean squared error 1e-4 with peak 1: 40 dB (the usual definition, common practice)
+        assert!((psnr_db(0.01, 100) - 40.0).abs() < 1e-12);
+        assert!((psnr_db(16384.0, 65536) - 10.0 * 4f64.log10()).abs() < 1e-12);
+        assert_eq!(psnr_db(0.0, 10), f64::INFINITY);
+    }
 }
