@@ -4,12 +4,14 @@
 //! cargo xtask test               every test: Rust, wasm facade, browser end to end
 //! cargo xtask serve [--port P]   build the browser app and serve web/ on 127.0.0.1
 //! cargo xtask dist               write dist/site/ and the self-contained dist/orbitspan.html
+//! cargo xtask bench [--quick]    benchmark the fit against the FFT floor and the dense method
 //! ```
 //!
 //! Plain Rust over `cargo`, `wasm-bindgen`, `node` and Chromium; the browser
 //! bundle is built by [`browser_bundle`], served by [`serve`], packed by
 //! [`dist`] (with [`module_inliner`] for the one-file page).
 
+mod bench;
 mod browser_bundle;
 mod dist;
 mod module_inliner;
@@ -33,6 +35,8 @@ commands:
                        http://127.0.0.1:P/ (default port 8000)
   dist                 write dist/site/ (for any static host) and
                        dist/orbitspan.html (one self-contained file)
+  bench [--quick] [--reps N] [--only W1,W2,W3]
+                       benchmark the fit (release); writes target/bench/
 ";
 
 fn main() -> ExitCode {
@@ -42,6 +46,7 @@ fn main() -> ExitCode {
         Some("test") => test::run(rest),
         Some("serve") => serve::run(rest),
         Some("dist") => dist::run(rest),
+        Some("bench") => bench::run(rest),
         Some("help" | "--help" | "-h") => {
             print!("{USAGE}");
             Ok(())

@@ -1,0 +1,286 @@
+//! `orbitspan-bench`: the fit against its floor (the FFT of the stack) and
+//! against the dense finite-group method, with peak memory and the doubling
+//! test, on three invented workloads made from a fixed seed (issue 5).
+//!
+//! ```text
+//! cargo run --release -p orbitspan-bench [-- --quick] [--reps N] [--only W1,W3]
+//! ```
+//! (or `cargo xtask bench`). Writes `target/bench/bench.md` and
+//! `target/bench/bench.json`. Timings are medians over interleaved
+//! repetitions in one process; the table reports ratios measured in the same
+//! run, since absolute times on a shared machine are noisy.
+
+mod dense;
+mod memory;
+mod workload;
+
+use orbitspan_core::fiber::Symmetry;
+use orbitspan_core::spectrum::fft2;
+use orbitspan_core::{fit, Silent, Stack};
+use serde::Serialize;
+use std::time::Instant;
+use workload::Workload;
+
+#[global_allocator]
+static ALLOCATOR: memory::Counting = memory::Counting;
+
+const USAGE: &str = "usage: orbitspan-bench [--quick] [--reps N] [--only W1,W2,W3]";
+
+struct Options {
+    quick: bool,
+    reps: usize,
+    only: Option<Vec<String>>,
+}
+
+fn parse(args: &[String]) -> Result<Options, String> {
+    let mut o = Options { quick: false, reps: 3, only: None };
+    let mut it = args.iter();
+    while let Some(a) = it.next() {
+        match a.as_str() {
+            "--quick" => o.quick = true,
+            "--reps" => {
+                let v = it.next().ok_or("--reps needs a number")?;
+                o.reps = v.parse().ok().filter(|&n: &usize| n >= 1).ok_or(format!("--reps: '{v}' is not a positive whole number"))?;
+            }
+            "--only" => {
+                let v = it.next().ok_or("--only needs workload names, e.g. W1,W3")?;
+                o.only = Some(v.split(',').map(|s| s.trim().to_uppercase()).collect());
+            }
+            other => return Err(format!("unknown argument '{other}'\n{USAGE}")),
+        }
+    }
+    Ok(o)
+}
+
+/// One workload's measurements (seconds, bytes).
+#[derive(Serialize)]
+struct WorkloadResult {
+    name: String,
+    description: String,
+    images: usize,
+    fit_seconds: f64,
+    fft_seconds: f64,
+    half_stack_fit_seconds: f64,
+    stack_f32_bytes: usize,
+    peak_heap_bytes: usize,
+    peak_heap_during_fit_bytes: usize,
+    fit_over_fft: f64,
+    doubling: f64,
+    memory_over_stack_f32: f64,
+    memory_during_fit_over_stack_f32: f64,
+}
+
+/// The dense method against the fit on one small torus.
+#[derive(Serialize)]
+struct DenseResult {
+    description: String,
+    dense_seconds: f64,
+    fit_seconds: f64,
+    dense_over_fit: f64,
+    /// `max_L |E_dense(L) − E_fit(L)| / E(0)`: both must give the same curve.
+    curve_difference: f64,
+}
+
+#[derive(Serialize)]
+struct Results {
+    quick: bool,
+    repetitions: usize,
+    threads_available: usize,
+    memory_method: &'static str,
+    workloads: Vec<WorkloadResult>,
+    dense: Vec<DenseResult>,
+    wasm_over_native: &'static str,
+}
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    }
+}
+
+fn seconds(f: impl FnOnce()) -> f64 {
+    let t = Instant::now();
+    f();
+    t.elapsed().as_secs_f64()
+}
+
+fn run_fit(stack: &Stack, w: &Workload) -> fit::Fit {
+    fit(stack, &w.settings, &mut Silent).unwrap_or_else(|e| panic!("{}: fit failed: {e}", w.name))
+}
+
+fn fft_stack(stack: &Stack) {
+    for img in stack.images() {
+        std::hint::black_box(fft2(img));
+    }
+}
+
+fn measure(w: &Workload, reps: usize) -> WorkloadResult {
+    eprintln!("{}: {} ...", w.name, w.description);
+    let stack = w.stack();
+    let half = Stack::new(
+        stack.labels()[..stack.len() / 2].iter().cloned().zip(stack.images()[..stack.len() / 2].iter().cloned()).collect(),
+    )
+    .expect("half of a valid stack is valid");
+    let stack_f32 = stack.len() * stack.height() * stack.width() * 4;
+
+    // Peak memory of one fit (also warms up caches and the FFT planner).
+    drop(half);
+    let before = memory::current();
+    memory::reset_peak();
+    let warm = seconds(|| {
+        std::hint::black_box(run_fit(&stack, w));
+    });
+    let peak = memory::peak();
+    eprintln!("  first fit {warm:.3} s, peak heap {:.1} MB", peak as f64 / 1e6);
+    let half = Stack::new(
+        stack.labels()[..stack.len() / 2].iter().cloned().zip(stack.images()[..stack.len() / 2].iter().cloned()).collect(),
+    )
+    .expect("half of a valid stack is valid");
+
+    let (mut fits, mut ffts, mut halves) = (Vec::new(), Vec::new(), Vec::new());
+    for rep in 0..reps {
+        ffts.push(seconds(|| fft_stack(&stack)));
+        fits.push(seconds(|| {
+            std::hint::black_box(run_fit(&stack, w));
+        }));
+        halves.push(seconds(|| {
+            std::hint::black_box(run_fit(&half, w));
+        }));
+        eprintln!("  rep {}: fft {:.3} s, fit {:.3} s, half-stack fit {:.3} s", rep + 1, ffts[rep], fits[rep], halves[rep]);
+    }
+    let (fit_s, fft_s, half_s) = (median(fits), median(ffts), median(halves));
+    WorkloadResult {
+        name: w.name.into(),
+        description: w.description.clone(),
+        images: stack.len(),
+        fit_seconds: fit_s,
+        fft_seconds: fft_s,
+        half_stack_fit_seconds: half_s,
+        stack_f32_bytes: stack_f32,
+        peak_heap_bytes: peak,
+        peak_heap_during_fit_bytes: peak - before,
+        fit_over_fft: fit_s / fft_s,
+        doubling: fit_s / half_s,
+        memory_over_stack_f32: peak as f64 / stack_f32 as f64,
+        memory_during_fit_over_stack_f32: (peak - before) as f64 / stack_f32 as f64,
+    }
+}
+
+fn measure_dense(w: &Workload, reps: usize) -> DenseResult {
+    eprintln!("dense: {} ...", w.description);
+    let stack = w.stack();
+    let sym = Symmetry::new([stack.height(), stack.width()], [w.settings.cell_rows, w.settings.cell_cols], &w.settings.group)
+        .expect("valid benchmark settings");
+    let lmax = w.settings.generators;
+    let (mut dense_t, mut fit_t) = (Vec::new(), Vec::new());
+    let mut difference = 0.0f64;
+    for _ in 0..reps {
+        let mut dense_curve = Vec::new();
+        dense_t.push(seconds(|| dense_curve = dense::dense_errors(&sym, stack.images(), lmax)));
+        let mut fitted = None;
+        fit_t.push(seconds(|| fitted = Some(run_fit(&stack, w))));
+        let fitted = fitted.expect("fit ran");
+        for (l, point) in fitted.report.error_curve.iter().enumerate() {
+            difference = difference.max((point.error - dense_curve[l]).abs() / stack.energy());
+        }
+    }
+    let (d, f) = (median(dense_t), median(fit_t));
+    eprintln!("  dense {d:.4} s, fit {f:.4} s, curve difference {difference:.1e}");
+    DenseResult { description: w.description.clone(), dense_seconds: d, fit_seconds: f, dense_over_fit: d / f, curve_difference: difference }
+}
+
+fn mb(bytes: usize) -> String {
+    format!("{:.1} MB", bytes as f64 / 1e6)
+}
+
+fn table(r: &Results) -> String {
+    let mut s = String::new();
+    s.push_str(&format!(
+        "Measured by `cargo xtask bench{}` ({} repetitions, medians, interleaved in one process; {} threads available; memory: {}).\n\n",
+        if r.quick { " --quick" } else { "" },
+        r.repetitions,
+        r.threads_available,
+        r.memory_method
+    ));
+    s.push_str("| workload | fit / FFT-only | time(2N) / time(N) | peak heap / stack f32 (during fit) | fit | FFT-only | fit of N/2 | peak heap | stack f32 |\n");
+    s.push_str("|---|---|---|---|---|---|---|---|---|\n");
+    for w in &r.workloads {
+        s.push_str(&format!(
+            "| {}: {} | {:.2} | {:.2} | {:.2} ({:.2}) | {:.3} s | {:.3} s | {:.3} s | {} | {} |\n",
+            w.name,
+            w.description,
+            w.fit_over_fft,
+            w.doubling,
+            w.memory_over_stack_f32,
+            w.memory_during_fit_over_stack_f32,
+            w.fit_seconds,
+            w.fft_seconds,
+            w.half_stack_fit_seconds,
+            mb(w.peak_heap_bytes),
+            mb(w.stack_f32_bytes)
+        ));
+    }
+    s.push_str("\n| dense method vs fit | dense / fit | dense | fit | max curve difference / energy |\n");
+    s.push_str("|---|---|---|---|---|\n");
+    for d in &r.dense {
+        s.push_str(&format!(
+            "| {} | {:.0} | {:.4} s | {:.4} s | {:.1e} |\n",
+            d.description, d.dense_over_fit, d.dense_seconds, d.fit_seconds, d.curve_difference
+        ));
+    }
+    s.push_str(&format!("\nwasm / native: {}\n", r.wasm_over_native));
+    s
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let options = match parse(&args) {
+        Ok(o) => o,
+        Err(e) => {
+            eprintln!("orbitspan-bench: {e}");
+            std::process::exit(2);
+        }
+    };
+    let wanted = |name: &str| options.only.as_ref().map_or(true, |o| o.iter().any(|n| n == name));
+    let mut workloads = Vec::new();
+    for w in workload::workloads(options.quick) {
+        if wanted(w.name) {
+            workloads.push(measure(&w, options.reps));
+        }
+    }
+    let dense: Vec<DenseResult> = workload::dense_cases().iter().map(|w| measure_dense(w, options.reps)).collect();
+    let results = Results {
+        quick: options.quick,
+        repetitions: options.reps,
+        threads_available: std::thread::available_parallelism().map_or(1, |n| n.get()),
+        memory_method: "counting global allocator (heap bytes; the f64 stack itself included)",
+        workloads,
+        dense,
+        wasm_over_native: "not measured (no in-browser timing in this harness yet)",
+    };
+    let md = table(&results);
+    print!("{md}");
+    let dir = target_dir().join("bench");
+    let written = std::fs::create_dir_all(&dir)
+        .and_then(|_| std::fs::write(dir.join("bench.md"), &md))
+        .and_then(|_| std::fs::write(dir.join("bench.json"), serde_json::to_string_pretty(&results).expect("results serialise")));
+    match written {
+        Ok(()) => eprintln!("wrote {} and bench.json", dir.join("bench.md").display()),
+        Err(e) => {
+            eprintln!("orbitspan-bench: could not write {}: {e}", dir.display());
+            std::process::exit(1);
+        }
+    }
+}
+
+/// `$CARGO_TARGET_DIR` or `<workspace>/target`.
+fn target_dir() -> std::path::PathBuf {
+    match std::env::var_os("CARGO_TARGET_DIR") {
+        Some(d) => d.into(),
+        None => std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../../target"),
+    }
+}
