@@ -20,6 +20,8 @@ pub enum Command {
     Fit(FitArgs),
     Apply(ApplyArgs),
     Demo(DemoArgs),
+    Detect(DetectArgs),
+    Survey(SurveyArgs),
     /// Print this help text to standard output and exit 0.
     Help(&'static str),
     Version,
@@ -47,6 +49,34 @@ pub struct FitArgs {
     pub lattice_coords: bool,
     pub input: InputArgs,
     pub out: Option<PathBuf>,
+    pub report: Option<PathBuf>,
+    /// A measured lattice: resample onto it before fitting.
+    pub lattice: Option<LatticeArg>,
+    /// Samples per cell side on the resampled grid (default: about one per pixel).
+    pub samples: Option<usize>,
+}
+
+/// `--lattice detect` or `--lattice R1,C1,R2,C2` (two vectors in pixels).
+#[derive(Debug, PartialEq, Clone, Copy)]
+pub enum LatticeArg {
+    Detect,
+    Vectors([[f64; 2]; 2]),
+}
+
+/// `orbitspan detect`.
+#[derive(Debug, PartialEq)]
+pub struct DetectArgs {
+    pub input: InputArgs,
+    pub report: Option<PathBuf>,
+}
+
+/// `orbitspan survey`.
+#[derive(Debug, PartialEq)]
+pub struct SurveyArgs {
+    pub lattice: LatticeArg,
+    pub samples: Option<usize>,
+    pub generators: usize,
+    pub input: InputArgs,
     pub report: Option<PathBuf>,
 }
 
@@ -89,6 +119,8 @@ Usage:
   orbitspan apply --model FILE IMAGES... --out DIR
                                         apply a saved model to new images
   orbitspan demo --out DIR              write the invented example stacks
+  orbitspan detect IMAGES...            measure the lattice from the spectrum
+  orbitspan survey [OPTIONS] IMAGES...  rank the plane groups the lattice allows
   orbitspan --version
 
 Run `orbitspan <command> --help` for the options of one command.
@@ -125,6 +157,16 @@ Options:
                           coordinates (needed for p3, p3m1, p31m, p6, p6m)
   --tile HxW              cut each image into tiles of H rows by W columns,
                           dropping partial tiles, and fit the tiles
+  --lattice detect|R1,C1,R2,C2
+                          the lattice is not on the pixel grid: measure it from
+                          the images' spectrum, or give two lattice vectors in
+                          pixels (row, column components); the images are
+                          resampled onto a grid along the lattice vectors, the
+                          symmetry centre is found, and the fit runs there
+                          (--cell, --origin and --lattice-coords then do not
+                          apply; arrays are written in grid coordinates)
+  --samples S             with --lattice: samples per cell side (default: about
+                          one per pixel)
   --max-megapixels N      refuse images larger than N megapixels (default: 64)
   --out DIR               write generators.npy, approximations.npy,
                           residuals.npy, PNG pictures, the model file
@@ -157,6 +199,46 @@ Output: the per-image errors ||f - P f||^2 of each image f against the model
 space, with its energy and relative error, and the total.
 ";
 
+pub const DETECT_HELP: &str = "\
+orbitspan detect: measure the lattice of a stack from its power spectrum
+
+Usage: orbitspan detect [OPTIONS] IMAGES...
+
+Finds the peaks of the stack's mean windowed power spectrum, refines them to
+sub-bin precision, fits two lattice vectors by least squares over all peaks,
+reduces them and names the lattice type (oblique, rectangular, centred
+rectangular, square, hexagonal).
+
+Options:
+  --report FILE           write the result as JSON
+  --tile HxW              cut each image into tiles of H rows by W columns
+  --max-megapixels N      refuse images larger than N megapixels (default: 64)
+  -h, --help              print this help
+";
+
+pub const SURVEY_HELP: &str = "\
+orbitspan survey: rank the plane groups that the stack's lattice allows
+
+Usage: orbitspan survey [OPTIONS] IMAGES...
+
+For every plane group the lattice type allows, resamples the stack onto the
+lattice, finds the best symmetry centre and reports the deviation D: the
+relative distance between the images (mean removed) and their average over
+the group, 0 for exact symmetry. Also the relative fit error with L
+generators. A low D suggests the group; it is not a proof (noise never
+reaches 0, and a subgroup of a fitting group fits at least as well).
+
+Options:
+  --lattice detect|R1,C1,R2,C2
+                          measure the lattice (default) or give two vectors
+  --samples S             samples per cell side (default: about one per pixel)
+  --generators L          generators for the fit-error column (default: 1)
+  --report FILE           write the ranked table as JSON
+  --tile HxW              cut each image into tiles of H rows by W columns
+  --max-megapixels N      refuse images larger than N megapixels (default: 64)
+  -h, --help              print this help
+";
+
 pub const DEMO_HELP: &str = "\
 orbitspan demo: write the invented example stacks
 
@@ -184,9 +266,11 @@ pub fn parse(args: Vec<OsString>) -> Result<Command, CliError> {
             Some("fit") => parse_fit(tokens),
             Some("apply") => parse_apply(tokens),
             Some("demo") => parse_demo(tokens),
+            Some("detect") => parse_detect(tokens),
+            Some("survey") => parse_survey(tokens),
             Some("help") => Ok(Command::Help(MAIN_HELP)),
             _ => Err(CliError::usage(
-                format!("unknown command '{}'; use fit, apply or demo", word.to_string_lossy()),
+                format!("unknown command '{}'; use fit, apply, demo, detect or survey", word.to_string_lossy()),
                 MAIN_HELP,
             )),
         },
@@ -204,6 +288,8 @@ fn parse_fit(mut tokens: Tokens) -> Result<Command, CliError> {
     let mut input = InputBuilder::default();
     let mut out = None;
     let mut report = None;
+    let mut lattice = None;
+    let mut samples = None;
     while let Some(token) = tokens.next() {
         let (name, inline) = match token {
             Token::Positional(path) => {
@@ -214,6 +300,8 @@ fn parse_fit(mut tokens: Tokens) -> Result<Command, CliError> {
         };
         match name.as_str() {
             "h" | "help" => return Ok(Command::Help(help)),
+            "lattice" => lattice = Some(parse_lattice(&tokens.value(&name, inline, help)?, help)?),
+            "samples" => samples = Some(parse_count(&name, &tokens.value(&name, inline, help)?, help)?),
             "group" => {
                 let text = tokens.value(&name, inline, help)?;
                 group = Some(PlaneGroup::parse(&text).map_err(|e| CliError::usage(e.to_string(), help))?);
@@ -258,7 +346,69 @@ fn parse_fit(mut tokens: Tokens) -> Result<Command, CliError> {
         input: input.finish(help)?,
         out,
         report,
+        lattice,
+        samples,
     }))
+}
+
+fn parse_detect(mut tokens: Tokens) -> Result<Command, CliError> {
+    let help = DETECT_HELP;
+    let mut input = InputBuilder::default();
+    let mut report = None;
+    while let Some(token) = tokens.next() {
+        match token {
+            Token::Positional(path) => input.images.push(PathBuf::from(path)),
+            Token::Option { name, inline } => match name.as_str() {
+                "h" | "help" => return Ok(Command::Help(help)),
+                "report" => report = Some(PathBuf::from(tokens.path_value(&name, inline, help)?)),
+                "tile" | "max-megapixels" => input.option(&name, tokens.value(&name, inline, help)?, help)?,
+                _ => return Err(unknown_option(&name, help)),
+            },
+        }
+    }
+    Ok(Command::Detect(DetectArgs { input: input.finish(help)?, report }))
+}
+
+fn parse_survey(mut tokens: Tokens) -> Result<Command, CliError> {
+    let help = SURVEY_HELP;
+    let mut input = InputBuilder::default();
+    let mut report = None;
+    let mut lattice = LatticeArg::Detect;
+    let mut samples = None;
+    let mut generators = 1;
+    while let Some(token) = tokens.next() {
+        match token {
+            Token::Positional(path) => input.images.push(PathBuf::from(path)),
+            Token::Option { name, inline } => match name.as_str() {
+                "h" | "help" => return Ok(Command::Help(help)),
+                "report" => report = Some(PathBuf::from(tokens.path_value(&name, inline, help)?)),
+                "lattice" => lattice = parse_lattice(&tokens.value(&name, inline, help)?, help)?,
+                "samples" => samples = Some(parse_count(&name, &tokens.value(&name, inline, help)?, help)?),
+                "generators" => generators = parse_count(&name, &tokens.value(&name, inline, help)?, help)?,
+                "tile" | "max-megapixels" => input.option(&name, tokens.value(&name, inline, help)?, help)?,
+                _ => return Err(unknown_option(&name, help)),
+            },
+        }
+    }
+    Ok(Command::Survey(SurveyArgs { lattice, samples, generators, input: input.finish(help)?, report }))
+}
+
+/// `detect` or `R1,C1,R2,C2`.
+fn parse_lattice(text: &str, help: &'static str) -> Result<LatticeArg, CliError> {
+    if text.trim() == "detect" {
+        return Ok(LatticeArg::Detect);
+    }
+    let bad = || {
+        CliError::usage(
+            format!("--lattice expects 'detect' or four numbers R1,C1,R2,C2 (two vectors in pixels), got '{text}'"),
+            help,
+        )
+    };
+    let v: Vec<f64> = text.split(',').map(|t| t.trim().parse::<f64>().map_err(|_| bad())).collect::<Result<_, _>>()?;
+    if v.len() != 4 || v.iter().any(|x| !x.is_finite()) {
+        return Err(bad());
+    }
+    Ok(LatticeArg::Vectors([[v[0], v[1]], [v[2], v[3]]]))
 }
 
 fn parse_apply(mut tokens: Tokens) -> Result<Command, CliError> {
@@ -334,6 +484,16 @@ pub fn fit_arguments(settings: &FitSettings) -> Vec<String> {
     if settings.lattice_coords {
         out.push("--lattice-coords".to_string());
     }
+    out
+}
+
+/// Like [`fit_arguments`] for a stack whose lattice must be measured:
+/// `--lattice detect --samples S` instead of the cell, origin and
+/// lattice-coordinates flag.
+pub fn measured_fit_arguments(settings: &FitSettings) -> Vec<String> {
+    let mut out = vec!["--group".to_string(), settings.group.name(), "--lattice".into(), "detect".into()];
+    out.extend(["--samples".to_string(), settings.cell_rows.to_string()]);
+    out.extend(fit_arguments(settings).into_iter().skip_while(|w| w != "--generators").filter(|w| w != "--lattice-coords"));
     out
 }
 

@@ -2,7 +2,7 @@
 //! each folder with `settings.json` (suggested settings and arguments) and a
 //! one-line `README.txt`.
 
-use crate::args::{fit_arguments, DemoArgs};
+use crate::args::{fit_arguments, measured_fit_arguments, DemoArgs};
 use crate::export;
 use crate::failure::{printed, CliError};
 use orbitspan_core::demo;
@@ -24,7 +24,11 @@ pub fn run(args: &DemoArgs, out: &mut dyn Write) -> Result<(), CliError> {
             export::write_file(&path, &png)?;
             files.push(file);
         }
-        let arguments = fit_arguments(&stack.suggested);
+        let arguments = match stack.lattice {
+            // lattice not on the pixel grid: measure it and resample
+            Some(_) => measured_fit_arguments(&stack.suggested),
+            None => fit_arguments(&stack.suggested),
+        };
         let command = format!("orbitspan fit {} {}/*.png", arguments.join(" "), dir.display());
         export::write_json(
             &dir.join("settings.json"),

@@ -13,6 +13,9 @@ use std::io::Write;
 pub fn run(args: &FitArgs, out: &mut dyn Write) -> Result<(), CliError> {
     let mut progress = ProgressBar::on_stderr();
     let stack = read_stack(&args.input, &mut progress)?;
+    if let Some(lattice) = args.lattice {
+        return crate::measured::fit(args, lattice, &stack, &mut progress, out);
+    }
     let settings = args.settings(stack.height(), stack.width());
     let result = fit(&stack, &settings, &mut progress)?;
     progress.finish();

@@ -11,6 +11,7 @@ mod export;
 mod failure;
 mod fit;
 mod input;
+mod measured;
 mod progress_bar;
 mod tables;
 
@@ -46,6 +47,8 @@ fn run(arguments: Vec<std::ffi::OsString>) -> Result<(), CliError> {
         Command::Fit(a) => fit::run(&a, &mut out),
         Command::Apply(a) => apply::run(&a, &mut out),
         Command::Demo(a) => demo::run(&a, &mut out),
+        Command::Detect(a) => measured::detect(&a, &mut out),
+        Command::Survey(a) => measured::survey(&a, &mut out),
         Command::Help(text) => failure::printed(write!(out, "{text}")),
         Command::Version => failure::printed(writeln!(out, "orbitspan {}", env!("CARGO_PKG_VERSION"))),
     }

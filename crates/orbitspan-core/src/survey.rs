@@ -12,7 +12,17 @@
 //! `⟨f, A_o f⟩ = (|G| N)⁻¹ Σ_g Σ_{η∈Λ^⊥} f̂(η) conj(f̂(gᵀη)) e^{2πi η·((I−g)o + t_g)/n}`,
 //!
 //! which is a trigonometric polynomial in `o`, so the best symmetry centre is
-//! searched continuously (a grid over one cell, then two finer grids).
+//! searched continuously (a grid over one cell, then three finer grids).
+//!
+//! Noise makes `D` large for every group alike. The **cell deviation** `D_c`
+//! is the same measure for the stack's mean unit cell (the lattice average,
+//! whose Fourier coefficients are those on `Λ^⊥`): noise averages out over
+//! the cells. Its expected value for pure noise is estimated from the energy
+//! off the reciprocal lattice: `D_noise² = (1 − 1/|G|) d e_off / E_cell`, with
+//! `e_off` the mean energy per off-lattice frequency. A group is called
+//! *consistent* when `D_c ≤ max(3 D_noise, 0.03)` (the 0.03 allows for
+//! resampling error). The survey ranks consistent groups first, the larger
+//! point groups before their subgroups, then the rest by `D_c`.
 //! `D = 0` for a stack with exact symmetry; a small `D` is a suggestion that
 //! the group fits, not a proof (a noisy stack never reaches 0, and a group
 //! contained in a fitting group fits at least as well).
@@ -78,25 +88,46 @@ fn resample_stack(stack: &Stack, grid: &LatticeGrid) -> Result<Stack> {
 /// Deviation `D(o)` of a resampled stack from the group's symmetry and the
 /// best origin `o` (in samples), searched over one cell.
 pub fn deviation(grid_stack: &Stack, sym: &Symmetry) -> (f64, [f64; 2]) {
+    let d = deviations(grid_stack, sym);
+    (d.image, d.origin)
+}
+
+/// Deviations of a resampled stack from a group's symmetry at the best origin.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Deviations {
+    /// `D`: whole images (mean removed).
+    pub image: f64,
+    /// `D_c`: the mean unit cell.
+    pub cell: f64,
+    /// Expected `D_c` from noise alone.
+    pub noise: f64,
+    /// Best origin in samples.
+    pub origin: [f64; 2],
+}
+
+/// [`Deviations`] of a resampled stack (see the module documentation).
+pub fn deviations(grid_stack: &Stack, sym: &Symmetry) -> Deviations {
     let l = sym.lattice();
     let [n1, n2] = l.torus();
     let dual = l.dual();
     // terms[g][k] = Σ_i f̂_i(η_k) conj(f̂_i(gᵀη_k)), η_k ∈ Λ^⊥ \ {0}
     let mut terms = vec![vec![Complex64::new(0.0, 0.0); dual.len()]; sym.order()];
     let mut energy = 0.0;
+    let mut cell_energy = 0.0;
     for img in grid_stack.images() {
         let mean = img.pixels.iter().sum::<f64>() / img.pixels.len() as f64;
         let centred = Image::new(n1, n2, img.pixels.iter().map(|v| v - mean).collect());
         let spec = fft2(&centred);
         energy += spec.iter().map(|z| z.norm_sqr()).sum::<f64>();
+        cell_energy += dual.iter().map(|&eta| spec[l.linear(eta)].norm_sqr()).sum::<f64>();
         for (g, op) in sym.ops().iter().enumerate() {
             for (k, &eta) in dual.iter().enumerate() {
                 terms[g][k] += spec[l.linear(eta)] * spec[l.linear(l.dual_action(&op.g, eta))].conj();
             }
         }
     }
-    if energy <= 0.0 {
-        return (0.0, [0.0, 0.0]);
+    if energy <= 0.0 || cell_energy <= 0.0 {
+        return Deviations { image: 0.0, cell: 0.0, noise: 0.0, origin: [0.0, 0.0] };
     }
     // Signed frequencies in (−n/2, n/2]: the interpolating trigonometric
     // polynomial for a fractional origin needs the smallest representatives.
@@ -115,7 +146,7 @@ pub fn deviation(grid_stack: &Stack, sym: &Symmetry) -> (f64, [f64; 2]) {
                 acc += (terms[g][k] * Complex64::from_polar(1.0, phase)).re;
             }
         }
-        acc / (sym.order() as f64 * energy)
+        acc / sym.order() as f64
     };
     let cell = l.cell();
     let (mut best, mut best_o) = (f64::NEG_INFINITY, [0.0, 0.0]);
@@ -145,7 +176,15 @@ pub fn deviation(grid_stack: &Stack, sym: &Symmetry) -> (f64, [f64; 2]) {
             }
         }
     }
-    ((1.0 - best).max(0.0).sqrt(), best_o)
+    let off = (n1 * n2 - dual.len()).max(1) as f64;
+    let e_off = (energy - cell_energy) / off;
+    let order = sym.order() as f64;
+    Deviations {
+        image: (1.0 - best / energy).max(0.0).sqrt(),
+        cell: (1.0 - best / cell_energy).max(0.0).sqrt(),
+        noise: ((1.0 - 1.0 / order) * dual.len() as f64 * e_off / cell_energy).sqrt(),
+        origin: best_o,
+    }
 }
 
 /// A fit on a measured lattice: the grid (with its origin at the symmetry
@@ -155,8 +194,8 @@ pub struct MeasuredFit {
     pub grid: LatticeGrid,
     pub grid_stack: Stack,
     pub fit: Fit,
-    /// Deviation of the resampled stack from the group's symmetry at the grid origin.
-    pub deviation: f64,
+    /// Deviations of the resampled stack from the group's symmetry at the grid origin.
+    pub deviations: Deviations,
     /// Relative forward-and-back interpolation error on the data.
     pub resampling_error: f64,
 }
@@ -204,10 +243,10 @@ pub fn fit_measured(
         lattice_coords: true,
     };
     let sym = Symmetry::new(grid.size(), grid.samples, &group)?;
-    let (dev, _) = deviation(&grid_stack, &sym);
+    let devs = deviations(&grid_stack, &sym);
     let fitted = fit(&grid_stack, &settings, progress)?;
     let resampling_error = grid.round_trip_error(stack.images());
-    Ok(MeasuredFit { grid, grid_stack, fit: fitted, deviation: dev, resampling_error })
+    Ok(MeasuredFit { grid, grid_stack, fit: fitted, deviations: devs, resampling_error })
 }
 
 /// One row of the survey table.
@@ -215,16 +254,25 @@ pub fn fit_measured(
 pub struct SurveyRow {
     pub group: String,
     pub cell: CellChoice,
-    /// Deviation `D` from the group's symmetry at the best centre.
+    /// Deviation `D` of the images from the group's symmetry at the best centre.
     pub deviation: f64,
+    /// Deviation `D_c` of the mean unit cell.
+    pub cell_deviation: f64,
+    /// Expected `D_c` from noise alone.
+    pub noise_level: f64,
+    /// `D_c ≤ max(3 D_noise, 0.03)`.
+    pub consistent: bool,
+    /// Point-group order `|G|`.
+    pub order: usize,
     /// The best symmetry centre in pixel coordinates.
     pub centre: [f64; 2],
     /// Relative fit error with the requested number of generators.
     pub relative_error: f64,
 }
 
-/// Ranks every group the lattice type allows by deviation (then by fit
-/// error). `reduced` is the reduced basis, `conventional` the centred
+/// Ranks every group the lattice type allows: consistent groups first,
+/// larger point groups first among them, then by cell deviation and fit
+/// error (see the module documentation). `reduced` is the reduced basis, `conventional` the centred
 /// rectangular cell (used only for cm and cmm).
 pub fn survey(
     stack: &Stack,
@@ -244,14 +292,25 @@ pub fn survey(
         let cell = if *choice == CellChoice::Conventional { conventional } else { reduced };
         let m = fit_measured(stack, cell, *group, samples, generators, None, None, &mut crate::progress::Silent)?;
         let n = m.fit.report.error_curve.len();
+        let dv = m.deviations;
         rows.push(SurveyRow {
             group: group.name(),
             cell: *choice,
-            deviation: m.deviation,
+            deviation: dv.image,
+            cell_deviation: dv.cell,
+            noise_level: dv.noise,
+            consistent: dv.cell <= (3.0 * dv.noise).max(0.03),
+            order: group.point_group().order(),
             centre: m.grid.origin,
             relative_error: m.fit.report.error_curve[n - 1].relative_error,
         });
     }
-    rows.sort_by(|a, b| a.deviation.total_cmp(&b.deviation).then(a.relative_error.total_cmp(&b.relative_error)));
+    rows.sort_by(|a, b| {
+        b.consistent
+            .cmp(&a.consistent)
+            .then(if a.consistent && b.consistent { b.order.cmp(&a.order) } else { std::cmp::Ordering::Equal })
+            .then(a.cell_deviation.total_cmp(&b.cell_deviation))
+            .then(a.relative_error.total_cmp(&b.relative_error))
+    });
     Ok(rows)
 }

@@ -70,6 +70,10 @@ fn survey_finds_exact_p3_symmetry_and_not_more() {
     for g in ["p2", "p6", "p3m1", "p31m", "p6m"] {
         assert!(dev(g) > 0.2, "{g}: deviation {} should be clearly larger", dev(g));
     }
+    // ranking: p3 (order 3) is the largest consistent group, p1 next; the rest are not consistent
+    assert_eq!(rows[0].group, "p3", "{rows:#?}");
+    assert_eq!(rows[1].group, "p1");
+    assert!(rows[2..].iter().all(|r| !r.consistent));
     // the p3 centre is found: the symmetry centre is a 3-fold centre of the
     // pattern, equivalent to `centre` modulo the lattice and the 3-fold
     // centres at (1/3,1/3) and (2/3,2/3) of the cell.
@@ -107,13 +111,13 @@ fn rotated_square_lattice_fits_p4m_after_resampling() {
     let images: Vec<Image> = (0..3).map(|k| symmetric_image(120, 120, cell, [60.4, 58.1], GroupSymbol::P4m, 40 + k)).collect();
     let stack = stack_of(images);
     let m = fit_measured(&stack, cell, PlaneGroup::standard(GroupSymbol::P4m), None, 3, None, None, &mut Silent).unwrap();
-    assert!(m.deviation < 0.02, "deviation {}", m.deviation);
+    assert!(m.deviations.image < 0.02, "deviation {}", m.deviations.image);
     assert!(m.resampling_error < 0.02, "resampling error {}", m.resampling_error);
     let e = m.fit.report.error_curve[2].relative_error;
     assert!(e < 1e-3, "relative error {e}");
     // the same data with the wrong group (p4g needs glides that are not there) fits worse
     let g = fit_measured(&stack, cell, PlaneGroup::standard(GroupSymbol::P4g), None, 1, None, None, &mut Silent).unwrap();
-    assert!(g.deviation > 0.1, "p4g deviation {}", g.deviation);
+    assert!(g.deviations.image > 0.1, "p4g deviation {}", g.deviations.image);
 }
 
 
@@ -136,8 +140,9 @@ fn honeycomb_micrograph_demo_survives_resampling_and_shows_the_vacancy() {
     let others = errors.iter().enumerate().filter(|(i, _)| *i != worst).map(|(_, e)| *e).fold(0.0, f64::max);
     assert!(errors[worst] > others + 1.0, "vacancy should stand out: {errors:?}");
     let rows = survey(&stack, LatticeType::Hexagonal, cell, cell, None, 3, &mut Silent).unwrap();
-    let p6m = rows.iter().find(|r| r.group == "p6m").unwrap().deviation;
-    let p3 = rows.iter().find(|r| r.group == "p3").unwrap().deviation;
-    // noise limits how small deviations get; p6m must be as good as its subgroup p3 within noise
-    assert!(p6m < 0.2 && (p6m - p3).abs() < 0.05, "p6m {p6m}, p3 {p3}: {rows:#?}");
+    // Noise keeps the whole-image deviation near 16 % for every group, but
+    // the mean cell is p6m to within noise: p6m is consistent and ranked first.
+    assert_eq!(rows[0].group, "p6m", "{rows:#?}");
+    assert!(rows.iter().all(|r| r.consistent), "{rows:#?}");
+    assert!(rows[0].cell_deviation < 0.03, "{rows:#?}");
 }
