@@ -71,13 +71,14 @@ export class WorkerClient {
   }
 }
 
-// The served page loads worker.js; the self-contained page (cargo xtask dist)
-// carries the worker's source and the wasm inline and starts it from a Blob.
+// The served page loads worker.js as a module worker. The self-contained page
+// (cargo xtask dist) carries the worker's modules inlined into one classic
+// script, and the wasm, and starts it from a Blob URL (from file://, Chromium
+// runs only classic workers from Blob URLs).
 function createWorker() {
   const inline = document.getElementById('orbitspan-worker-source');
   if (!inline) return new Worker(new URL('./worker.js', import.meta.url), { type: 'module' });
   const wasm = document.getElementById('orbitspan-wasm-base64').textContent.trim();
   const source = `globalThis.orbitspanWasmBase64 = '${wasm}';\n${inline.textContent}`;
-  const url = URL.createObjectURL(new Blob([source], { type: 'text/javascript' }));
-  return new Worker(url, { type: 'module' });
+  return new Worker(URL.createObjectURL(new Blob([source], { type: 'text/javascript' })));
 }

@@ -121,6 +121,7 @@ export function createCurve({ onChoose }) {
   return {
     // curve: report.error_curve; chosen: the generator count in use.
     render(curve, chosen) {
+      svg.toggleAttribute('hidden', !curve?.length);
       if (!curve?.length) {
         last = null;
         svg.replaceChildren();

@@ -21,6 +21,7 @@ export function createViewer({ onSelect }) {
   let cell = null;
   let thumbKey = '';
   let selected = 0;
+  let hasModel = false;
   document.getElementById('prev-image').addEventListener('click', () => onSelect(selected - 1));
   document.getElementById('next-image').addEventListener('click', () => onSelect(selected + 1));
 
@@ -229,10 +230,12 @@ export function createViewer({ onSelect }) {
       if (!next || !imageSize || next.width !== imageSize.width || next.height !== imageSize.height) view.scale = null;
       imageSize = next;
       problem.textContent = pictures?.problem ? `Fitted and residual not shown: ${pictures.problem}` : '';
+      problem.className = pictures?.problem && hasModel ? 'problem' : 'hint';
       draw();
     },
     render(state) {
       selected = state.selected;
+      hasModel = Boolean(state.model);
       const image = state.images[state.selected];
       name.textContent = image ? `${state.selected + 1} / ${state.images.length} · ${image.label} · ${size(image.height, image.width)}` : 'no image';
       document.getElementById('prev-image').disabled = state.selected <= 0;

@@ -6,12 +6,12 @@
 //!   the worker's modules (with the wasm-bindgen glue) sit in a
 //!   `<script type="text/plain" id="orbitspan-worker-source">` block and the
 //!   wasm as base64 in `<script type="text/plain" id="orbitspan-wasm-base64">`;
-//!   the page starts the worker from a Blob URL of that source (see
-//!   `web/worker-client.js`). Its Content-Security-Policy allows exactly the two
+//!   the page starts the worker from a Blob URL of that source as a classic
+//!   worker (see `web/worker-client.js`). Its Content-Security-Policy allows exactly the two
 //!   inline blocks (by SHA-256 hash), `blob:` workers and wasm compilation, and
 //!   nothing from any network.
 
-use crate::module_inliner::inline_modules;
+use crate::module_inliner::{inline_modules, inline_modules_as_classic_script};
 use crate::{browser_bundle, no_arguments, workspace_root, Result};
 use sha2::{Digest, Sha256};
 use std::path::Path;
@@ -67,7 +67,7 @@ pub fn write_single_file(web: &Path, out: &Path) -> Result<()> {
     let html = read("index.html")?;
     let css = read("style.css")?;
     let page_script = inline_modules(&web.join("main.js"))?;
-    let worker_script = inline_modules(&web.join("worker.js"))?;
+    let worker_script = inline_modules_as_classic_script(&web.join("worker.js"))?;
     let wasm_path = web.join("pkg").join(format!("{}_bg.wasm", browser_bundle::FACADE_STEM));
     let wasm = std::fs::read(&wasm_path).map_err(|e| format!("{}: cannot read (build the bundle first): {e}", wasm_path.display()))?;
 

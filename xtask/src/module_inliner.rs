@@ -59,6 +59,18 @@ pub fn inline_modules(entry: &Path) -> Result<String> {
     Ok(out)
 }
 
+/// [`inline_modules`] as a classic script, for a worker started from a Blob
+/// URL by a page opened from disk (Chromium refuses module workers from
+/// `blob:` URLs of a `file://` page). The one module-only expression left,
+/// `import.meta.url`, becomes the worker's own address `self.location.href`.
+pub fn inline_modules_as_classic_script(entry: &Path) -> Result<String> {
+    let script = inline_modules(entry)?.replace("import.meta.url", "self.location.href");
+    if script.contains("import.meta") {
+        return Err(format!("{}: 'import.meta' other than import.meta.url cannot run in a classic script", entry.display()));
+    }
+    Ok(script)
+}
+
 /// Depth-first: imported modules come before their importers.
 fn visit(
     path: &PathBuf,
@@ -277,6 +289,9 @@ mod tests {
         assert!(out.contains("return { size };"), "{out}");
         assert!(out.contains("const { size } = __module_0;"), "{out}");
         assert!(out.contains("const z = __module_0;"), "{out}");
+        std::fs::write(dir.join("worker.js"), "import { size } from './zip.js';\nconst url = new URL('x.wasm', import.meta.url);\n").unwrap();
+        let classic = inline_modules_as_classic_script(&dir.join("worker.js")).unwrap();
+        assert!(classic.contains("new URL('x.wasm', self.location.href)") && !classic.contains("import.meta"), "{classic}");
         std::fs::write(dir.join("bad.js"), "export * from './zip.js';\n").unwrap();
         let err = inline_modules(&dir.join("bad.js")).unwrap_err();
         assert!(err.contains("bad.js:1") && err.contains("unsupported export"), "{err}");
