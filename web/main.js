@@ -27,6 +27,7 @@ const state = {
   settingsProblem: null, // a malformed input, said plainly
   check: null, // { problem, groups } for the current settings and image size
   canFit: false,
+  fitBlocker: null, // why Fit cannot run now, or null
   busy: null, // null | 'files' | 'fit' | 'apply' | 'model'
   progress: null, // { stage, fraction }
   fit: null, // { report, seconds } of the last finished fit
@@ -108,7 +109,10 @@ async function settingsChanged() {
     state.settingsProblem = describeError(error);
   }
   const group = state.check?.groups.find((g) => g.name === state.settings.group);
-  state.canFit = state.images.length > 0 && !state.settingsProblem && !state.check?.problem && Boolean(group?.ok);
+  // Why Fit is not possible, said next to the Fit button.
+  state.fitBlocker = !state.images.length ? 'Add images or use the example stack first.'
+    : state.settingsProblem ?? state.check?.problem ?? (group && !group.ok ? `${group.name} cannot be used here: ${group.reason}` : null);
+  state.canFit = !state.fitBlocker && Boolean(group?.ok);
   render();
 }
 
@@ -432,4 +436,5 @@ window.addEventListener('hashchange', () => {
 });
 restoreFromLink();
 settingsChanged();
+refreshPictures();
 drawLegend();

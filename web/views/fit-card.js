@@ -14,6 +14,7 @@ export function createFitCard({ onChange, onFit, onCancel }) {
   const text = document.getElementById('progress-text');
   const status = document.getElementById('fit-status');
   const summary = document.getElementById('fit-summary');
+  const blocker = document.getElementById('fit-blocker');
 
   generators.addEventListener('input', onChange);
   bandValue.addEventListener('input', onChange);
@@ -59,6 +60,7 @@ export function createFitCard({ onChange, onFit, onCancel }) {
       bandValue.disabled = state.busy !== null;
       status.textContent = state.fitStatus ?? '';
       status.className = state.fitStatusIsProblem ? 'status problem' : 'status';
+      blocker.textContent = state.busy === null && state.fitBlocker ? state.fitBlocker : '';
       const fitResult = state.fit;
       if (fitResult) {
         const last = fitResult.report.error_curve[fitResult.report.error_curve.length - 1];

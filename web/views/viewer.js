@@ -229,7 +229,9 @@ export function createViewer({ onSelect }) {
       const next = first ? { width: first.width, height: first.height } : null;
       if (!next || !imageSize || next.width !== imageSize.width || next.height !== imageSize.height) view.scale = null;
       imageSize = next;
-      problem.textContent = pictures?.problem ? `Fitted and residual not shown: ${pictures.problem}` : '';
+      problem.textContent = pictures?.problem
+        ? `Fitted and residual not shown: ${pictures.problem}`
+        : pictures ? '' : 'Add images or use the example stack to see them here.';
       problem.className = pictures?.problem && hasModel ? 'problem' : 'hint';
       draw();
     },
