@@ -61,6 +61,8 @@ const topbar = createTopbar({ onSaveModel: saveModel, onExport: exportFiles, set
 function render() {
   const busy = state.busy !== null;
   for (const id of ['add-images', 'use-example']) document.getElementById(id).disabled = busy;
+  // A newcomer's first step stands out until there are images.
+  document.getElementById('use-example').classList.toggle('primary', state.images.length === 0);
   stackCard.render(state);
   symmetryCard.render(state);
   fitCard.render(state);
