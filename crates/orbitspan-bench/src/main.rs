@@ -64,6 +64,8 @@ struct WorkloadResult {
     stack_f32_bytes: usize,
     peak_heap_bytes: usize,
     peak_heap_during_fit_bytes: usize,
+    /// One fit's seconds per progress stage (from each stage's first report to the next's).
+    stages: Vec<(String, f64)>,
     fit_over_fft: f64,
     doubling: f64,
     memory_over_stack_f32: f64,
@@ -112,6 +114,28 @@ fn run_fit(stack: &Stack, w: &Workload) -> fit::Fit {
     fit(stack, &w.settings, &mut Silent).unwrap_or_else(|e| panic!("{}: fit failed: {e}", w.name))
 }
 
+/// One fit with the seconds spent in each progress stage, in stage order.
+fn staged_fit(stack: &Stack, w: &Workload) -> Vec<(String, f64)> {
+    let mut stages: Vec<(String, f64)> = Vec::new();
+    let mut last = Instant::now();
+    let mut record = |stage: &str, _fraction: f64| {
+        let now = Instant::now();
+        let spent = (now - last).as_secs_f64();
+        last = now;
+        match stages.last_mut() {
+            Some((name, t)) if name == stage => *t += spent,
+            _ => stages.push((stage.to_string(), spent)),
+        }
+        true
+    };
+    fit(stack, &w.settings, &mut record).unwrap_or_else(|e| panic!("{}: fit failed: {e}", w.name));
+    let tail = last.elapsed().as_secs_f64();
+    if let Some((_, t)) = stages.last_mut() {
+        *t += tail;
+    }
+    stages
+}
+
 fn fft_stack(stack: &Stack) {
     for img in stack.images() {
         std::hint::black_box(fft2(img));
@@ -136,6 +160,9 @@ fn measure(w: &Workload, reps: usize) -> WorkloadResult {
     });
     let peak = memory::peak();
     eprintln!("  first fit {warm:.3} s, peak heap {:.1} MB", peak as f64 / 1e6);
+    let stages = staged_fit(&stack, w);
+    let shown: Vec<String> = stages.iter().map(|(name, t)| format!("{name} {t:.3} s")).collect();
+    eprintln!("  stages (time up to the next stage's first report): {}", shown.join(", "));
     let half = Stack::new(
         stack.labels()[..stack.len() / 2].iter().cloned().zip(stack.images()[..stack.len() / 2].iter().cloned()).collect(),
     )
@@ -163,6 +190,7 @@ fn measure(w: &Workload, reps: usize) -> WorkloadResult {
         stack_f32_bytes: stack_f32,
         peak_heap_bytes: peak,
         peak_heap_during_fit_bytes: peak - before,
+        stages,
         fit_over_fft: fit_s / fft_s,
         doubling: fit_s / half_s,
         memory_over_stack_f32: peak as f64 / stack_f32 as f64,

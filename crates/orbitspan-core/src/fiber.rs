@@ -31,6 +31,12 @@ impl Gather {
     pub fn apply(&self, spectrum: &[Complex64]) -> Vec<Complex64> {
         self.index.iter().zip(&self.phase).map(|(&i, &p)| p * spectrum[i]).collect()
     }
+    /// [`Gather::apply`] into a slice of the same length.
+    pub fn apply_into(&self, spectrum: &[Complex64], out: &mut [Complex64]) {
+        for ((o, &i), &p) in out.iter_mut().zip(&self.index).zip(&self.phase) {
+            *o = p * spectrum[i];
+        }
+    }
     /// The inverse: writes `f̂[index_k] = conj(phase_k) · v_k`.
     pub fn scatter(&self, v: &[Complex64], spectrum: &mut [Complex64]) {
         for ((&i, &p), &x) in self.index.iter().zip(&self.phase).zip(v) {
@@ -209,6 +215,63 @@ impl Symmetry {
         }
         out
     }
+}
+
+/// Threads for per-orbit work: the available cores (at most 8), one on wasm
+/// (no threads there without cross-origin isolation).
+pub fn worker_threads() -> usize {
+    if cfg!(target_arch = "wasm32") {
+        1
+    } else {
+        std::thread::available_parallelism().map_or(1, |n| n.get().min(8))
+    }
+}
+
+/// Runs `work(k)` for `k in 0..count` on up to [`worker_threads`] threads
+/// and hands each result to `consume(k, result)` on the calling thread (in
+/// completion order; `work` must not depend on the order). Each `work(k)` is
+/// computed by the same code whatever the thread count, so results are
+/// bit-identical with one thread or many. `consume` returning an error stops
+/// the remaining work and returns that error.
+pub(crate) fn for_each_parallel<T: Send, E>(
+    count: usize,
+    work: impl Fn(usize) -> T + Sync,
+    mut consume: impl FnMut(usize, T) -> std::result::Result<(), E>,
+) -> std::result::Result<(), E> {
+    let threads = worker_threads().min(count);
+    if threads <= 1 {
+        for k in 0..count {
+            consume(k, work(k))?;
+        }
+        return Ok(());
+    }
+    use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+    let next = AtomicUsize::new(0);
+    let stop = AtomicBool::new(false);
+    std::thread::scope(|scope| {
+        let (sender, receiver) = std::sync::mpsc::channel();
+        for _ in 0..threads {
+            let sender = sender.clone();
+            let (next, stop, work) = (&next, &stop, &work);
+            scope.spawn(move || loop {
+                let k = next.fetch_add(1, Ordering::Relaxed);
+                if k >= count || stop.load(Ordering::Relaxed) {
+                    break;
+                }
+                if sender.send((k, work(k))).is_err() {
+                    break;
+                }
+            });
+        }
+        drop(sender);
+        for (k, result) in receiver {
+            if let Err(e) = consume(k, result) {
+                stop.store(true, Ordering::Relaxed);
+                return Err(e);
+            }
+        }
+        Ok(())
+    })
 }
 
 #[cfg(test)]

@@ -15,7 +15,7 @@
 
 use crate::band::{self, Band};
 use crate::error::{Error, Result};
-use crate::fiber::{Orbit, Symmetry};
+use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use crate::frame;
 use crate::isotypic::{isotypic_blocks, Monomial};
 use crate::model::Model;
@@ -117,13 +117,23 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
         None => None,
     };
 
+    // One decomposition per orbit, on several threads; each orbit's result
+    // does not depend on the others or on the thread count.
     let orbits = sym.orbits();
-    let mut solutions = Vec::with_capacity(orbits.len());
-    for (k, orbit) in orbits.iter().enumerate() {
-        check(progress, "fitting frequencies", k as f64 / orbits.len() as f64)?;
-        solutions.push(solve_orbit(&sym, orbit, &spectra, lmax, path)?);
-    }
+    let mut slots: Vec<Option<OrbitSolution>> = (0..orbits.len()).map(|_| None).collect();
+    let mut done = 0;
+    check(progress, "fitting frequencies", 0.0)?;
+    for_each_parallel(
+        orbits.len(),
+        |k| solve_orbit(&sym, &orbits[k], &spectra, lmax, path),
+        |k, solution| {
+            slots[k] = Some(solution?);
+            done += 1;
+            check(progress, "fitting frequencies", done as f64 / orbits.len() as f64)
+        },
+    )?;
     drop(spectra);
+    let solutions: Vec<OrbitSolution> = slots.into_iter().map(|s| s.expect("every orbit solved")).collect();
 
     let total_energy = stack.energy();
     let mut curve = Vec::with_capacity(lmax);
@@ -236,30 +246,28 @@ pub(crate) fn solve_orbit(
     let d = sym.lattice().fiber_len();
     let r = orbit.points.len();
     let hsize = orbit.stabiliser.len() as f64;
-    let mut y = DMatrix::<Complex64>::zeros(d, gcount * m);
-    for g in 0..gcount {
-        let gather = sym.gather(orbit.rep, g);
-        for (i, s) in spectra.iter().enumerate() {
-            let v = gather.apply(s);
-            y.column_mut(g * m + i).copy_from_slice(&v);
-        }
-    }
     let use_gram = match path {
         FiberPath::Auto => gcount * m < d,
         FiberPath::Covariance => false,
         FiberPath::Gram => true,
     };
-    let scale = Complex64::new(1.0 / hsize, 0.0);
-    let (x, ops) = if use_gram {
+    let gathers: Vec<Gather> = (0..gcount).map(|g| sym.gather(orbit.rep, g)).collect();
+    let (x, ops, y) = if use_gram {
+        let mut y = DMatrix::<Complex64>::zeros(d, gcount * m);
+        for (g, gather) in gathers.iter().enumerate() {
+            for (i, s) in spectra.iter().enumerate() {
+                gather.apply_into(s, y.column_mut(g * m + i).as_mut_slice());
+            }
+        }
         let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
-        (y.adjoint() * &y * scale, ops)
+        (gram(&y) * Complex64::new(1.0 / hsize, 0.0), ops, Some(y))
     } else {
         let ops = orbit
             .stabiliser
             .iter()
             .map(|&h| sym.fiber_unitary(orbit.rep, h))
             .collect::<Result<Vec<_>>>()?;
-        (&y * y.adjoint() * scale, ops)
+        (pooled_covariance(&gathers, spectra) * Complex64::new(1.0 / hsize, 0.0), ops, None)
     };
     let n = x.nrows();
     let blocks = isotypic_blocks(n, &ops)?;
@@ -269,7 +277,7 @@ pub(crate) fn solve_orbit(
     let mut tail = 0.0;
     let mut layer_vectors: Vec<Vec<DVector<Complex64>>> = vec![Vec::new(); lmax];
     for b in &blocks {
-        let xw = b.basis.adjoint() * &x * &b.basis;
+        let xw = adjoint_product(&b.basis, &product(&x, &b.basis));
         let eig = nalgebra::SymmetricEigen::new(xw);
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
@@ -294,7 +302,10 @@ pub(crate) fn solve_orbit(
             }
             for &e in chunk {
                 let v = &b.basis * eig.eigenvectors.column(e);
-                let u = if use_gram { &y * v } else { v };
+                let u = match &y {
+                    Some(y) => y * v,
+                    None => v,
+                };
                 let norm = u.norm();
                 if norm > 0.0 {
                     layer_vectors[layer].push(u / Complex64::new(norm, 0.0));
@@ -326,4 +337,74 @@ pub(crate) fn solve_orbit(
         layers.push(if done.len() == start { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&done[start..]) });
     }
     Ok(OrbitSolution { layer_energy, tail, layers })
+}
+
+/// Columns of pooled fiber vectors per block in [`pooled_covariance`]: bounds
+/// the memory of the accumulation independently of the number of images.
+const POOL_BLOCK: usize = 512;
+
+/// `Σ_{g,i} v_{g,i} v_{g,i}ᴴ` for the fiber vectors `v_{g,i} = gather_g(f̂_i)`,
+/// accumulated over blocks of [`POOL_BLOCK`] vectors without forming the
+/// whole `d x m|G|` matrix `Y`: with `Y = A + iB` (real and imaginary parts),
+/// `Y Yᴴ = (A Aᵀ + B Bᵀ) + i (B Aᵀ − (B Aᵀ)ᵀ)`, three real matrix products.
+pub(crate) fn pooled_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>]) -> DMatrix<Complex64> {
+    let d = gathers.first().map_or(0, |g| g.index.len());
+    let pairs: Vec<(&Gather, &Vec<Complex64>)> = gathers.iter().flat_map(|g| spectra.iter().map(move |s| (g, s))).collect();
+    let mut re = DMatrix::<f64>::zeros(d, d);
+    let mut cross = DMatrix::<f64>::zeros(d, d);
+    for chunk in pairs.chunks(POOL_BLOCK) {
+        let mut a = DMatrix::<f64>::zeros(d, chunk.len());
+        let mut b = DMatrix::<f64>::zeros(d, chunk.len());
+        for (c, (gather, s)) in chunk.iter().enumerate() {
+            for (k, (&i, &p)) in gather.index.iter().zip(&gather.phase).enumerate() {
+                let v = p * s[i];
+                a[(k, c)] = v.re;
+                b[(k, c)] = v.im;
+            }
+        }
+        let (at, bt) = (a.transpose(), b.transpose());
+        re.gemm(1.0, &a, &at, 1.0);
+        re.gemm(1.0, &b, &bt, 1.0);
+        cross.gemm(1.0, &b, &at, 1.0);
+    }
+    DMatrix::from_fn(d, d, |r, c| Complex64::new(re[(r, c)], cross[(r, c)] - cross[(c, r)]))
+}
+
+/// The Gram matrix `Yᴴ Y = (AᵀA + BᵀB) + i (AᵀB − (AᵀB)ᵀ)` for `Y = A + iB`.
+pub(crate) fn gram(y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+    let (a, b) = split(y);
+    let (at, bt) = (a.transpose(), b.transpose());
+    let mut re = &at * &a;
+    re.gemm(1.0, &bt, &b, 1.0);
+    let cross = &at * &b;
+    let n = y.ncols();
+    DMatrix::from_fn(n, n, |r, c| Complex64::new(re[(r, c)], cross[(r, c)] - cross[(c, r)]))
+}
+
+/// Real and imaginary parts.
+fn split(m: &DMatrix<Complex64>) -> (DMatrix<f64>, DMatrix<f64>) {
+    (m.map(|z| z.re), m.map(|z| z.im))
+}
+
+/// `X Y` for complex matrices through four real matrix products
+/// `(A + iB)(C + iD) = (AC − BD) + i (AD + BC)` (the real product is the
+/// blocked, vectorised one).
+pub(crate) fn product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+    let ((a, b), (c, d)) = (split(x), split(y));
+    let mut re = &a * &c;
+    re.gemm(-1.0, &b, &d, 1.0);
+    let mut im = &a * &d;
+    im.gemm(1.0, &b, &c, 1.0);
+    re.zip_map(&im, Complex64::new)
+}
+
+/// `Xᴴ Y` through real matrix products (see [`product`]).
+pub(crate) fn adjoint_product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+    let ((a, b), (c, d)) = (split(x), split(y));
+    let (at, bt) = (a.transpose(), b.transpose());
+    let mut re = &at * &c;
+    re.gemm(1.0, &bt, &d, 1.0);
+    let mut im = &at * &d;
+    im.gemm(-1.0, &bt, &c, 1.0);
+    re.zip_map(&im, Complex64::new)
 }

@@ -17,8 +17,8 @@
 //! `w_{g,l}` the fiber at `ξ` of `π(γ_g) φ_l`.
 
 use crate::error::{Error, Result};
-use crate::fiber::{Orbit, Symmetry};
-use crate::fit::{check, OrbitSolution};
+use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
+use crate::fit::{adjoint_product, check, product, OrbitSolution};
 use crate::prng::SplitMix64;
 use crate::progress::Progress;
 use crate::spectrum::{fft2, ifft2_real};
@@ -46,15 +46,16 @@ const REFERENCES: u64 = 4;
 const GOOD_CONDITIONING: f64 = 1e-4;
 
 /// `φ` at every point of one orbit from `ψ` (already set on the orbit), with
-/// the worst conditioning met.
-fn orbit_generator(sym: &Symmetry, orbit: &Orbit, k: usize, psi: &[Complex64]) -> (Vec<([usize; 2], DVector<Complex64>)>, f64) {
+/// the worst conditioning met. `point_gathers[j][g]` is the gather at the
+/// orbit's point `j` for the point-group element `g`.
+fn orbit_generator(sym: &Symmetry, orbit: &Orbit, point_gathers: &[Vec<Gather>], k: usize, psi: &[Complex64]) -> (Vec<([usize; 2], DVector<Complex64>)>, f64) {
     let l = sym.lattice();
     let d = l.fiber_len();
     let mut worst = f64::INFINITY;
     let mut out = Vec::with_capacity(orbit.points.len());
-    for &(fiber, _) in &orbit.points {
+    for (&(fiber, _), gathers) in orbit.points.iter().zip(point_gathers) {
         let xi = l.fiber_rep(fiber);
-        let w = fiber_matrix(sym, xi, &[psi]);
+        let w = gathered_matrix(gathers, &[psi]);
         let eig = nalgebra::SymmetricEigen::new(w.adjoint() * &w);
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
@@ -97,30 +98,43 @@ pub(crate) fn parseval_generators(
         }
     }
     let conjugate: Vec<usize> = orbits.iter().map(|o| orbit_of_fiber[l.fiber_of(l.neg(o.rep))]).collect();
-    let mut out = Vec::with_capacity(lmax);
-    for layer in 0..lmax {
-        check(progress, "building generators", layer as f64 / lmax as f64)?;
-        let mut psi = vec![Complex64::new(0.0, 0.0); n1 * n2];
-        let mut phi = vec![Complex64::new(0.0, 0.0); n1 * n2];
-        let mut chosen = vec![0u64; orbits.len()];
-        for (o, (orbit, sol)) in orbits.iter().zip(solutions).enumerate() {
+    // Orbit by orbit (the gathers of an orbit are made once for all layers);
+    // `psi` is scratch: each orbit sets and reads only its own fibers.
+    let mut psi = vec![Complex64::new(0.0, 0.0); n1 * n2];
+    let mut phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; lmax];
+    let mut chosen = vec![vec![0u64; orbits.len()]; lmax];
+    for (o, (orbit, sol)) in orbits.iter().zip(solutions).enumerate() {
+        check(progress, "building generators", o as f64 / orbits.len() as f64)?;
+        if sol.layers.iter().all(|q| q.ncols() == 0) {
+            continue;
+        }
+        let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
+        let point_gathers: Vec<Vec<Gather>> = orbit
+            .points
+            .iter()
+            .map(|&(fiber, _)| {
+                let xi = l.fiber_rep(fiber);
+                (0..sym.order()).map(|g| sym.gather(xi, g)).collect()
+            })
+            .collect();
+        for layer in 0..lmax {
             let q = &sol.layers[layer];
             let k = q.ncols();
             if k == 0 {
                 continue;
             }
-            let candidates: Vec<u64> = if conjugate[o] < o { vec![chosen[conjugate[o]]] } else { (0..REFERENCES).collect() };
+            let candidates: Vec<u64> =
+                if conjugate[o] < o { vec![chosen[layer][conjugate[o]]] } else { (0..REFERENCES).collect() };
             let mut best: Option<(u64, Vec<([usize; 2], DVector<Complex64>)>, f64)> = None;
             for c in candidates {
                 // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
                 // project on the layer's basis there, transport back.
-                for &(_, op) in &orbit.points {
-                    let gather = sym.gather(orbit.rep, op);
+                for gather in &transports {
                     let x = DVector::from_vec(gather.apply(&references[c as usize]));
                     let y = q * (q.adjoint() * x);
                     gather.scatter(y.as_slice(), &mut psi);
                 }
-                let (fibers, worst) = orbit_generator(sym, orbit, k, &psi);
+                let (fibers, worst) = orbit_generator(sym, orbit, &point_gathers, k, &psi);
                 let better = best.as_ref().map_or(true, |b| worst > b.2);
                 if better {
                     best = Some((c, fibers, worst));
@@ -137,11 +151,14 @@ pub(crate) fn parseval_generators(
                     orbit.rep
                 )));
             }
-            chosen[o] = c;
-            for (xi, v) in fibers {
-                sym.gather(xi, 0).scatter(v.as_slice(), &mut phi);
+            chosen[layer][o] = c;
+            for ((_, v), gathers) in fibers.into_iter().zip(&point_gathers) {
+                gathers[0].scatter(v.as_slice(), &mut phis[layer]);
             }
         }
+    }
+    let mut out = Vec::with_capacity(lmax);
+    for phi in phis {
         let (image, imag) = ifft2_real(&phi, n1, n2);
         let norm = image.energy().sqrt();
         out.push(Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image });
@@ -152,14 +169,18 @@ pub(crate) fn parseval_generators(
 /// The `d x (|G| · count)` matrix of fibers at `xi` of `π(γ_g) φ` for every
 /// point-group element `g` and every spectrum `φ`; column `g · count + j`.
 pub(crate) fn fiber_matrix(sym: &Symmetry, xi: [usize; 2], spectra: &[&[Complex64]]) -> DMatrix<Complex64> {
-    let d = sym.lattice().fiber_len();
+    let gathers: Vec<Gather> = (0..sym.order()).map(|g| sym.gather(xi, g)).collect();
+    gathered_matrix(&gathers, spectra)
+}
+
+/// [`fiber_matrix`] from the gathers at `xi` of every point-group element.
+fn gathered_matrix(gathers: &[Gather], spectra: &[&[Complex64]]) -> DMatrix<Complex64> {
+    let d = gathers.first().map_or(0, |g| g.index.len());
     let count = spectra.len();
-    let mut w = DMatrix::zeros(d, sym.order() * count);
-    for g in 0..sym.order() {
-        let gather = sym.gather(xi, g);
+    let mut w = DMatrix::zeros(d, gathers.len() * count);
+    for (g, gather) in gathers.iter().enumerate() {
         for (j, s) in spectra.iter().enumerate() {
-            let v = gather.apply(s);
-            w.column_mut(g * count + j).copy_from_slice(&v);
+            gather.apply_into(s, w.column_mut(g * count + j).as_mut_slice());
         }
     }
     w
@@ -168,25 +189,50 @@ pub(crate) fn fiber_matrix(sym: &Symmetry, xi: [usize; 2], spectra: &[&[Complex6
 /// Replaces each spectrum by that of its orthogonal projection onto the
 /// span of the Γ-orbit of the generators, using the Parseval frame
 /// operator `P(ξ) = d⁻¹ W Wᴴ` at each orbit representative and transporting
-/// each orbit point there and back.
+/// each orbit point there and back. All spectra go through each fiber at
+/// once (`W (Wᴴ X)` with `X` the `d x m` matrix of their fibers); orbits run
+/// on several threads and each fiber is written in place, so the result does
+/// not depend on the thread count.
 pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>], spectra: &mut [Vec<Complex64>]) {
     let d = sym.lattice().fiber_len() as f64;
     let gens: Vec<&[Complex64]> = generator_spectra.iter().map(|g| g.as_slice()).collect();
-    let pixels = sym.lattice().pixels();
-    let mut outputs = vec![vec![Complex64::new(0.0, 0.0); pixels]; spectra.len()];
-    for orbit in sym.orbits() {
+    let orbits = sym.orbits();
+    let count = spectra.len();
+    let work = |k: usize, spectra: &[Vec<Complex64>]| -> Vec<(Gather, DMatrix<Complex64>)> {
+        let orbit = &orbits[k];
         let w = fiber_matrix(sym, orbit.rep, &gens);
-        let wh = w.adjoint();
+        let mut out = Vec::with_capacity(orbit.points.len());
         for &(_, op) in &orbit.points {
             let gather = sym.gather(orbit.rep, op);
-            for (s, out) in spectra.iter().zip(outputs.iter_mut()) {
-                let x = DVector::from_vec(gather.apply(s));
-                let y = &w * (&wh * x) * Complex64::new(1.0 / d, 0.0);
-                gather.scatter(y.as_slice(), out);
+            let mut x = DMatrix::<Complex64>::zeros(gather.index.len(), count);
+            for (i, s) in spectra.iter().enumerate() {
+                gather.apply_into(s, x.column_mut(i).as_mut_slice());
+            }
+            let y = product(&w, &adjoint_product(&w, &x)) * Complex64::new(1.0 / d, 0.0);
+            out.push((gather, y));
+        }
+        out
+    };
+    // Orbits in waves: workers read the spectra, then the calling thread
+    // writes the wave's fibers (no orbit reads another's fibers), so memory
+    // beyond the spectra is bounded by one wave.
+    let indices: Vec<usize> = (0..orbits.len()).collect();
+    for wave in indices.chunks(PROJECTION_WAVE) {
+        let mut writes = Vec::with_capacity(wave.len());
+        let reader: &[Vec<Complex64>] = spectra;
+        let done: std::result::Result<(), std::convert::Infallible> =
+            for_each_parallel(wave.len(), |j| work(wave[j], reader), |_, fibers| {
+                writes.push(fibers);
+                Ok(())
+            });
+        let Ok(()) = done;
+        for (gather, y) in writes.into_iter().flatten() {
+            for (i, s) in spectra.iter_mut().enumerate() {
+                gather.scatter(y.column(i).as_slice(), s);
             }
         }
     }
-    for (s, o) in spectra.iter_mut().zip(outputs) {
-        *s = o;
-    }
 }
+
+/// Orbits per wave in [`frame_project`].
+const PROJECTION_WAVE: usize = 32;
