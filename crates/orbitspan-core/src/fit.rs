@@ -44,6 +44,10 @@ pub enum FiberPath {
 pub struct Fit {
     pub report: Report,
     pub model: Model,
+    /// The chosen frequency set `Ω` when the fit is band-limited (row-major
+    /// mask over the spectrum, in the group frame: frequencies are unchanged
+    /// by the origin shift, which only changes phases).
+    pub band: Option<Band>,
 }
 
 /// Per-orbit result: captured energy per layer, the energy beyond the last
@@ -167,7 +171,7 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
             imaginary_part: generators[l].imaginary_part,
         });
     }
-    let band_report = band.map(|b| BandReport {
+    let band_report = band.as_ref().map(|b| BandReport {
         frequencies: b.len(),
         outside_energy: outside,
         inside_error: curve[lmax - 1].error - outside,
@@ -186,7 +190,7 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
         band: band_report,
         generators: infos,
     };
-    Ok(Fit { report, model })
+    Ok(Fit { report, model, band })
 }
 
 pub(crate) fn ratio(a: f64, b: f64) -> f64 {
