@@ -295,6 +295,7 @@ pub(crate) fn solve_orbit(
             }
         }
         // Keep whole copies (s eigenvectors) with non-negligible energy.
+        let mut kept: Vec<(usize, usize)> = Vec::new();
         for (copy, chunk) in order.chunks(s).enumerate() {
             let layer = copy / (r * s);
             if layer >= lmax {
@@ -304,16 +305,20 @@ pub(crate) fn solve_orbit(
             if !(mean > tol) {
                 continue;
             }
-            for &e in chunk {
-                let v = &b.basis * eig.eigenvectors.column(e);
-                let u = match &y {
-                    Some(y) => y * v,
-                    None => v,
-                };
-                let norm = u.norm();
-                if norm > 0.0 {
-                    layer_vectors[layer].push(u / Complex64::new(norm, 0.0));
-                }
+            kept.extend(chunk.iter().map(|&e| (layer, e)));
+        }
+        // One vector at a time (not one product of all kept vectors): each
+        // vector's round-off must not depend on how many are kept, so the
+        // generators for L are bit-identical to the first L for L + 1.
+        for &(layer, e) in &kept {
+            let v = &b.basis * eig.eigenvectors.column(e);
+            let u = match &y {
+                Some(y) => y * v,
+                None => v,
+            };
+            let norm = u.norm();
+            if norm > 0.0 {
+                layer_vectors[layer].push(u / Complex64::new(norm, 0.0));
             }
         }
     }

@@ -18,7 +18,7 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
-use crate::fit::{adjoint_product, check, product, OrbitSolution};
+use crate::fit::{adjoint_product, check, gram, product, OrbitSolution};
 use crate::prng::SplitMix64;
 use crate::progress::Progress;
 use crate::spectrum::{fft2, ifft2_real};
@@ -56,7 +56,7 @@ fn orbit_generator(sym: &Symmetry, orbit: &Orbit, point_gathers: &[Vec<Gather>],
     for (&(fiber, _), gathers) in orbit.points.iter().zip(point_gathers) {
         let xi = l.fiber_rep(fiber);
         let w = gathered_matrix(gathers, &[psi]);
-        let eig = nalgebra::SymmetricEigen::new(w.adjoint() * &w);
+        let eig = nalgebra::SymmetricEigen::new(gram(&w));
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
         let top = eig.eigenvalues[order[0]];
