@@ -10,6 +10,7 @@
 //! repetitions in one process; the table reports ratios measured in the same
 //! run, since absolute times on a shared machine are noisy.
 
+#[path = "../../orbitspan-core/tests/support/dense.rs"]
 mod dense;
 mod memory;
 mod workload;
@@ -208,7 +209,7 @@ fn measure_dense(w: &Workload, reps: usize) -> DenseResult {
     let mut difference = 0.0f64;
     for _ in 0..reps {
         let mut dense_curve = Vec::new();
-        dense_t.push(seconds(|| dense_curve = dense::dense_errors(&sym, stack.images(), lmax)));
+        dense_t.push(seconds(|| dense_curve = dense::dense_errors(&dense::group_permutations(&sym), stack.images(), lmax)));
         let mut fitted = None;
         fit_t.push(seconds(|| fitted = Some(run_fit(&stack, w))));
         let fitted = fitted.expect("fit ran");
