@@ -23,12 +23,17 @@ const state = {
   thumbnails: [], // one picture per image
   selected: 0,
   example: null, // { name, description } once the example stack is used
-  settings: { group: 'p1', cell_rows: null, cell_cols: null, origin: [0, 0], generators: 4, band: null, lattice_coords: false },
+  settings: { group: 'p1', cell_rows: null, cell_cols: null, origin: [0, 0], generators: 4, band: null, lattice_coords: false, lattice: null, samples: null },
   settingsProblem: null, // a malformed input, said plainly
   check: null, // { problem, groups } for the current settings and image size
   canFit: false,
   fitBlocker: null, // why Fit cannot run now, or null
-  busy: null, // null | 'files' | 'fit' | 'apply' | 'model'
+  busy: null, // null | 'files' | 'fit' | 'apply' | 'model' | 'measure' | 'survey'
+  lattice: null, // the measured lattice { kind, a1, a2, lengths, angle, conventional, uncertainty, peaks }
+  latticeKey: null, // the lattice choice it was measured for
+  latticeProblem: null,
+  survey: null, // { lattice, generators, groups: [survey rows] }
+  latticeFit: null, // { lattice, grid, resampling_error, … } when the model is on a measured lattice
   progress: null, // { stage, fraction }
   fit: null, // { report, seconds } of the last finished fit
   model: null, // { info: { settings, height, width, generators }, source: 'fit' | file name }
@@ -50,7 +55,7 @@ const cards = {
 };
 
 const stackCard = createStackCard({ onFiles: addFiles, onExample: useExample, onRemove: removeEntry, onClear: clearStack });
-const symmetryCard = createSymmetryCard({ onChange: settingsChanged });
+const symmetryCard = createSymmetryCard({ onChange: settingsChanged, onMeasure: measureLattice, onSurvey: runSurvey, onChooseGroup: chooseGroup });
 const fitCard = createFitCard({ onChange: settingsChanged, onFit: runFit, onCancel: cancelFit });
 const resultsCard = createResultsCard({ onSelect: select, onOpenModel: openModel, onApply: applyModel });
 const viewer = createViewer({ onSelect: select });
@@ -60,7 +65,8 @@ const topbar = createTopbar({ onSaveModel: saveModel, onExport: exportFiles, set
 
 function render() {
   const busy = state.busy !== null;
-  for (const id of ['add-images', 'use-example']) document.getElementById(id).disabled = busy;
+  for (const id of ['add-images', 'use-example', 'example-choice']) document.getElementById(id).disabled = busy;
+  document.getElementById('curve-grid-note').hidden = !(state.latticeFit && state.model?.source === 'fit');
   // A newcomer's first step stands out until there are images.
   document.getElementById('use-example').classList.toggle('primary', state.images.length === 0);
   stackCard.render(state);
@@ -79,15 +85,36 @@ const describeError = (error) => String(error?.message ?? error);
 
 function readSettings() {
   const s = { ...symmetryCard.read(), ...fitCard.read() };
-  const wholeAtLeast = (value, least) => Number.isInteger(value) && value >= least;
-  let problem = null;
-  if (!wholeAtLeast(s.cell_rows, 1) || !wholeAtLeast(s.cell_cols, 1)) problem = 'Give the unit cell as two whole numbers of pixels (height and width), at least 1.';
-  else if (!wholeAtLeast(s.origin[0], 0) || !wholeAtLeast(s.origin[1], 0)) problem = 'The origin is a pixel: two whole numbers, 0 or more.';
-  else if (!wholeAtLeast(s.generators, 1)) problem = 'The number of generators L must be a whole number, at least 1.';
-  else if (s.band?.kind === 'frequencies' && !wholeAtLeast(s.band.value, 1)) problem = 'The band limit M is a whole number of frequencies, at least 1.';
-  else if (s.band?.kind === 'radius' && !(Number.isFinite(s.band.value) && s.band.value > 0)) problem = 'The band radius R must be a number above 0.';
   state.settings = s;
-  state.settingsProblem = problem;
+  state.settingsProblem = settingsProblem(s);
+  // A measurement or survey for another lattice choice no longer applies.
+  if (state.latticeKey !== JSON.stringify(s.lattice)) {
+    state.lattice = null;
+    state.survey = null;
+    state.latticeProblem = null;
+  }
+}
+
+// The first malformed input, said plainly, or null.
+function settingsProblem(s) {
+  const wholeAtLeast = (value, least) => Number.isInteger(value) && value >= least;
+  if (s.lattice) {
+    if (s.lattice.mode === 'vectors' && ![...s.lattice.a1, ...s.lattice.a2].every(Number.isFinite)) return 'Give both lattice vectors as two numbers each (row, column), in pixels.';
+    if (s.samples !== null && !wholeAtLeast(s.samples, 2)) return 'Samples per cell side must be a whole number, at least 2 (or empty for about one sample per pixel).';
+  } else {
+    if (!wholeAtLeast(s.cell_rows, 1) || !wholeAtLeast(s.cell_cols, 1)) return 'Give the unit cell as two whole numbers of pixels (height and width), at least 1.';
+    if (!wholeAtLeast(s.origin[0], 0) || !wholeAtLeast(s.origin[1], 0)) return 'The origin is a pixel: two whole numbers, 0 or more.';
+  }
+  if (!wholeAtLeast(s.generators, 1)) return 'The number of generators L must be a whole number, at least 1.';
+  if (s.band?.kind === 'frequencies' && !wholeAtLeast(s.band.value, 1)) return 'The band limit M is a whole number of frequencies, at least 1.';
+  if (s.band?.kind === 'radius' && !(Number.isFinite(s.band.value) && s.band.value > 0)) return 'The band radius R must be a number above 0.';
+  return null;
+}
+
+// Settings as the worker reads them: with a measured lattice the cell is not
+// used, and an empty one is sent as 1 x 1.
+function wireSettings(s) {
+  return s.lattice ? { ...s, cell_rows: s.cell_rows || 1, cell_cols: s.cell_cols || 1 } : s;
 }
 
 let checkSequence = 0;
@@ -98,8 +125,8 @@ async function settingsChanged() {
   // Placeholders keep the request well formed while an input is being typed.
   const s = state.settings;
   const probe = state.settingsProblem
-    ? { ...s, cell_rows: s.cell_rows > 0 ? s.cell_rows : 1, cell_cols: s.cell_cols > 0 ? s.cell_cols : 1, origin: [0, 0], generators: 1, band: null }
-    : s;
+    ? { ...s, cell_rows: s.cell_rows > 0 ? s.cell_rows : 1, cell_cols: s.cell_cols > 0 ? s.cell_cols : 1, origin: [0, 0], generators: 1, band: null, lattice: null, samples: null }
+    : wireSettings(s);
   render();
   try {
     const check = await client.request('check', { settings: probe });
@@ -128,6 +155,11 @@ function applySettings(settings) {
 async function stackChanged(images, from) {
   const before = state.images.length;
   state.images = images;
+  // The lattice was measured on the old stack.
+  state.lattice = null;
+  state.latticeKey = null;
+  state.survey = null;
+  state.latticeProblem = null;
   if (state.selected >= images.length) state.selected = Math.max(0, images.length - 1);
   if (from !== null && images.length > from) {
     try {
@@ -191,9 +223,10 @@ async function useExample() {
   state.busy = 'files';
   render();
   const from = state.images.length;
+  const which = document.getElementById('example-choice').value;
   try {
-    const example = await client.request('add-example');
-    client.remember('add-example');
+    const example = await client.request('add-example', { example: which });
+    client.remember('add-example', { example: which });
     state.files.push({ name: `Example: ${example.name}`, status: 'added', images: example.added });
     state.example = { name: example.name, description: example.description };
     applySettings(example.settings);
@@ -273,7 +306,7 @@ async function runFit() {
   state.fitStatusIsProblem = false;
   render();
   try {
-    const result = await client.request('fit', { settings }, (progress) => {
+    const result = await client.request('fit', { settings: wireSettings(settings) }, (progress) => {
       state.progress = progress;
       fitCard.render(state);
     });
@@ -282,9 +315,15 @@ async function runFit() {
     state.modelBytes = result.modelBytes;
     state.generators = result.generators;
     state.chosen = result.model.generators;
-    state.errors = { rows: result.report.images, caption: `Error per image with L = ${state.chosen}` };
-    state.modelStatus = null;
+    state.latticeFit = result.lattice;
+    if (result.lattice) {
+      state.lattice = result.lattice.lattice;
+      state.latticeKey = JSON.stringify(settings.lattice);
+    }
+    state.errors = { rows: result.report.images, caption: errorsCaption(state.chosen) };
+    state.modelStatus = result.lattice ? latticeModelNote(result.model) : null;
     client.remember('open-model', { name: 'fit', bytes: result.modelBytes.slice().buffer });
+    if (result.lattice) client.remember('restore-lattice', { info: result.lattice });
     client.remember('restore-report', { report: result.report });
     state.busy = null;
     state.fitStatus = `Fitted ${state.images.length} image${state.images.length === 1 ? '' : 's'} in ${result.seconds.toFixed(2)} s.`;
@@ -329,10 +368,10 @@ async function chooseGenerators(count) {
     state.chosen = count;
     const full = state.fit.report.error_curve.length;
     if (count === full) {
-      state.errors = { rows: state.fit.report.images, caption: `Error per image with L = ${count}` };
+      state.errors = { rows: state.fit.report.images, caption: errorsCaption(count) };
     } else {
       const applied = await client.request('apply');
-      state.errors = { rows: applied.errors, caption: `Error per image with L = ${count}` };
+      state.errors = { rows: applied.errors, caption: errorsCaption(count) };
     }
     state.modelStatus = `Using the first ${count} of ${full} generators: pictures, saving and export follow.`;
     state.modelStatusIsProblem = false;
@@ -355,6 +394,7 @@ async function openModel(file) {
     const result = await client.request('open-model', { name, bytes });
     client.remember('open-model', { name, bytes });
     state.model = { info: result.model, source: name };
+    state.latticeFit = null;
     state.modelBytes = new Uint8Array(bytes);
     state.generators = result.generators;
     state.chosen = result.model.generators;
@@ -390,7 +430,71 @@ async function applyModel() {
 
 function modelFileName() {
   const s = state.model.info.settings;
-  return `orbitspan-${s.group.replace(':', '-')}-L${state.model.info.generators}.orbitspan-model`;
+  const grid = state.model.info.grid ? '-lattice-grid' : '';
+  return `orbitspan-${s.group.replace(':', '-')}${grid}-L${state.model.info.generators}.orbitspan-model`;
+}
+
+function errorsCaption(count) {
+  return state.latticeFit ? `Error per image on the lattice grid with L = ${count}` : `Error per image with L = ${count}`;
+}
+
+// What a model from a fit on a measured lattice is.
+function latticeModelNote(model) {
+  return `This model is on the lattice grid (${model.height} x ${model.width} samples), not on the pixels: `
+    + 'it applies to images resampled onto that grid. Saved, it is labelled "lattice-grid".';
+}
+
+// ---- measured lattices ----------------------------------------------------
+
+async function measureLattice() {
+  readSettings();
+  const s = state.settings;
+  if (!s.lattice || state.settingsProblem) return;
+  state.busy = 'measure';
+  state.latticeProblem = null;
+  render();
+  try {
+    state.lattice = await client.request('detect', { lattice: s.lattice });
+    state.latticeKey = JSON.stringify(s.lattice);
+  } catch (error) {
+    if (error.name === 'Cancelled') return;
+    state.lattice = null;
+    state.latticeProblem = describeError(error);
+  }
+  state.busy = null;
+  render();
+}
+
+async function runSurvey() {
+  readSettings();
+  const s = state.settings;
+  if (!s.lattice || state.settingsProblem) return;
+  state.busy = 'survey';
+  state.progress = null;
+  state.latticeProblem = null;
+  render();
+  try {
+    const options = { lattice: s.lattice, samples: s.samples, generators: s.generators };
+    const result = await client.request('survey', { options }, (progress) => {
+      state.progress = progress;
+      symmetryCard.render(state);
+    });
+    state.survey = result;
+    state.lattice = result.lattice;
+    state.latticeKey = JSON.stringify(s.lattice);
+  } catch (error) {
+    if (error.name === 'Cancelled') return;
+    state.latticeProblem = describeError(error);
+  }
+  state.busy = null;
+  state.progress = null;
+  render();
+}
+
+function chooseGroup(name) {
+  if (state.busy !== null) return;
+  symmetryCard.write({ group: name });
+  settingsChanged();
 }
 
 function saveModel() {

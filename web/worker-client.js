@@ -46,11 +46,12 @@ export class WorkerClient {
 
   // Remembers a request that changed the worker's state, to replay after a
   // restart. A request that replaces earlier state makes those forgotten:
-  // 'clear' the images, 'open-model' the model, 'restore-report' the report.
+  // 'clear' the images, 'open-model' the model (and its lattice),
+  // 'restore-report' the report.
   remember(op, args = {}) {
     const replaces = {
       clear: ['add-files', 'add-example', 'remove-image', 'clear'],
-      'open-model': ['open-model', 'choose'],
+      'open-model': ['open-model', 'choose', 'restore-lattice'],
       choose: ['choose'],
       'restore-report': ['restore-report'],
     }[op] ?? [];

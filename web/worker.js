@@ -2,25 +2,41 @@
 //
 // Protocol: one set of messages.
 //   page -> worker  { id, op, ...arguments }
-//   worker -> page  { id, progress: { stage, fraction } }     zero or more, for 'fit' and 'apply'
+//   worker -> page  { id, progress: { stage, fraction } }     zero or more, for 'fit', 'survey' and 'apply'
 //                   { id, result }                           then exactly one of these two
 //                   { id, error: { name, message } }         name: BadInput | Cancelled | InternalError
 // Requests are handled one at a time, in the order sent. Typed arrays in a
 // result are transferred, not copied. Pictures are { height, width, rgba:
 // Uint8ClampedArray, values?: Float64Array }. Settings are the page's form:
 // { group: 'p4m', cell_rows, cell_cols, origin: [row, col], generators,
-//   band: null | { kind: 'frequencies' | 'radius', value }, lattice_coords }.
+//   band: null | { kind: 'frequencies' | 'radius', value }, lattice_coords,
+//   lattice: null | { mode: 'detect' } | { mode: 'vectors', a1: [row, col], a2: [row, col] },
+//   samples: null | S }.
+// With a lattice (vectors in pixels), a fit resamples the images onto a grid
+// along the lattice with S samples per cell side (null: about one per pixel)
+// and fits there, as `orbitspan fit --lattice`; cell, origin and
+// lattice_coords are then not used. Lattice info is { kind, a1, a2, lengths,
+// angle, conventional, uncertainty: null | { lengths, angle }, peaks }: the
+// reduced basis in pixels, lengths in pixels, angles in degrees.
 //
 //   op             arguments                    result
 //   add-files      files: [{ name, bytes }],    { added: [{ file, images }], failed: [{ file, message }], images }
 //                  tile: { rows, cols } | null
-//   add-example    -                            { name, description, settings, added, images }
+//   add-example    example: 'woven-cloth' |     { name, description, settings, added, images }
+//                  'honeycomb-micrograph'
 //   remove-image   index                        { images }
 //   clear          -                            { images }
 //   thumbnails     from                         [picture] of images from..end
 //   check          settings                     { problem, groups: [{ name, full, ok, reason }] }
-//   fit            settings                     { report, generators: [picture], model, modelBytes, seconds }
+//   detect         lattice                      lattice info (measured, or typed vectors reduced)
+//   survey         options: { lattice,          { lattice, generators, groups: [{ group, cell, order,
+//                  samples, generators }          cell_deviation, noise_level, consistent, deviation,
+//                                                 centre, relative_error }] }, ranked (best first)
+//   fit            settings                     { report, generators: [picture], model, modelBytes, seconds,
+//                                                 lattice: null | { lattice, grid, resampling_error,
+//                                                 image_deviation, cell_deviation, noise_level } }
 //   restore-report report                       null (the report of an earlier fit, after a restart)
+//   restore-lattice info                        null (the lattice of an earlier fit's model, after a restart)
 //   choose         count                        { model, modelBytes }
 //   pictures       index                        { original, fitted, residual, problem }
 //   open-model     name, bytes                  { model, generators: [picture] }
@@ -29,7 +45,10 @@
 //                  report }
 //   legend         width                        picture of the residual colour scale, −1 … 1
 // where images = [{ label, height, width }] is the whole stack after the
-// change and model = { settings, height, width, generators }.
+// change and model = { settings, height, width, generators, grid }; grid is
+// null, or { samples, cells } when the model is on a measured lattice's grid
+// (then the report's errors are on that grid, pictures are mapped back to the
+// pixels, and an export also holds lattice.json and residual-pixels-NNN.png).
 //
 // Cancel: the page terminates this worker and starts a new one, then sends
 // the requests that rebuild the stack and the model (web/worker-client.js).
@@ -99,7 +118,7 @@ function run(op, m, progress) {
       return { added, failed, images: session.images() };
     }
     case 'add-example': {
-      const example = session.addExample();
+      const example = session.addExample(m.example);
       return { ...example, added: example.images, images: session.images() };
     }
     case 'remove-image':
@@ -116,6 +135,10 @@ function run(op, m, progress) {
     }
     case 'check':
       return session.checkSettings(m.settings);
+    case 'detect':
+      return session.latticeOf(m.lattice ?? { mode: 'detect' });
+    case 'survey':
+      return session.survey(m.options, progress);
     case 'fit': {
       const start = performance.now();
       const report = session.fit(m.settings, progress);
@@ -123,10 +146,14 @@ function run(op, m, progress) {
       return {
         report, seconds,
         generators: session.generatorPictures(), model: session.modelInfo(), modelBytes: session.modelBytes(),
+        lattice: session.latticeFit(),
       };
     }
     case 'restore-report':
       session.restoreReport(m.report);
+      return null;
+    case 'restore-lattice':
+      session.restoreLatticeFit(m.info);
       return null;
     case 'choose':
       return { model: session.chooseGenerators(m.count), modelBytes: session.modelBytes() };
@@ -156,8 +183,12 @@ function exportFiles(parts) {
   const count = session.images().length;
   const generators = session.modelInfo().generators;
   const number = (i, width) => String(i + 1).padStart(width, '0');
+  const onLattice = session.latticeFit() !== null;
   if (parts.report) {
     files.push({ name: 'report.json', bytes: new TextEncoder().encode(session.reportJson() + '\n') });
+  }
+  if (onLattice && (parts.report || parts.arrays || parts.pictures)) {
+    files.push({ name: 'lattice.json', bytes: new TextEncoder().encode(session.latticeJson() + '\n') });
   }
   if (parts.arrays) {
     files.push({ name: 'generators.npy', bytes: session.npy('generators') });
@@ -172,6 +203,7 @@ function exportFiles(parts) {
       files.push({ name: `original-${number(i, 3)}.png`, bytes: session.png('original', i) });
       files.push({ name: `fitted-${number(i, 3)}.png`, bytes: session.png('fitted', i) });
       files.push({ name: `residual-${number(i, 3)}.png`, bytes: session.png('residual', i) });
+      if (onLattice) files.push({ name: `residual-pixels-${number(i, 3)}.png`, bytes: session.png('residual-pixels', i) });
     }
   }
   return files;

@@ -37,7 +37,12 @@ export async function serverUrl() {
       server.stdout.on('data', (data) => {
         text += data;
         const match = text.match(/http:\/\/127\.0\.0\.1:\d+\//);
-        if (match) resolveUrl(match[0]);
+        if (match) {
+          // The server must not keep the test process alive once the tests are done.
+          server.unref();
+          server.stdout.unref?.();
+          resolveUrl(match[0]);
+        }
       });
       server.on('exit', (code) => reject(new Error(`cargo xtask serve exited with ${code}`)));
     });
@@ -57,20 +62,24 @@ export function runCli(args) {
   return execFileSync(cliPath(), args, { encoding: 'utf8', stdio: ['ignore', 'pipe', 'pipe'] });
 }
 
-let demo = null;
-// The example stacks written by `orbitspan demo`: the woven cloth folder, its files and settings.
-export function demoStack() {
-  if (!demo) {
-    const dir = tempDir('demo');
-    runCli(['demo', '--out', dir]);
-    // Each stack has its own folder with a settings.json naming the stack.
-    const folders = readdirSync(dir).map((name) => join(dir, name));
-    const cloth = folders.find((folder) => JSON.parse(readFileSync(join(folder, 'settings.json'), 'utf8')).name === 'woven cloth');
-    if (!cloth) throw new Error(`orbitspan demo wrote no 'woven cloth' stack into ${dir}`);
-    const info = JSON.parse(readFileSync(join(cloth, 'settings.json'), 'utf8'));
-    demo = { dir: cloth, files: info.images.map((f) => join(cloth, f)), info };
+let demoDir = null;
+const demos = new Map();
+// An example stack written by `orbitspan demo` ('woven cloth' unless named):
+// its folder, files and settings.
+export function demoStack(name = 'woven cloth') {
+  if (!demoDir) {
+    demoDir = tempDir('demo');
+    runCli(['demo', '--out', demoDir]);
   }
-  return demo;
+  if (!demos.has(name)) {
+    // Each stack has its own folder with a settings.json naming the stack.
+    const folders = readdirSync(demoDir).map((entry) => join(demoDir, entry));
+    const folder = folders.find((f) => JSON.parse(readFileSync(join(f, 'settings.json'), 'utf8')).name === name);
+    if (!folder) throw new Error(`orbitspan demo wrote no '${name}' stack into ${demoDir}`);
+    const info = JSON.parse(readFileSync(join(folder, 'settings.json'), 'utf8'));
+    demos.set(name, { dir: folder, files: info.images.map((f) => join(folder, f)), info });
+  }
+  return demos.get(name);
 }
 
 // Command-line arguments for page settings (as read from the controls).

@@ -41,3 +41,24 @@ test('a settings link restores the controls and the controls write the link', as
     await browser.close();
   }
 });
+
+test('a settings link restores a typed lattice and samples, and a pixel-grid link turns them off', async () => {
+  const browser = await openBrowser();
+  try {
+    const { page } = browser;
+    await page.goto(`${await serverUrl()}#group=p6m&measure=vectors&a1=9.18,2.807&a2=-2.159,-9.354&samples=12&L=2`);
+    await page.waitForFunction(() => document.getElementById('lattice-mode').value === 'vectors');
+    const values = await page.evaluate(() => ['lattice-mode', 'a1-row', 'a1-col', 'a2-row', 'a2-col', 'samples', 'group', 'generators']
+      .map((id) => document.getElementById(id).value));
+    assert.deepEqual(values, ['vectors', '9.18', '2.807', '-2.159', '-9.354', '12', 'p6m', '2']);
+    assert.ok(await page.isVisible('#lattice-vectors'));
+    assert.ok(await page.isHidden('#cell-rows'), 'the pixel cell is not asked for with a typed lattice');
+
+    await page.evaluate(() => { location.hash = '#group=p4m&cell=16x16&origin=0,0&L=3'; });
+    await page.waitForFunction(() => document.getElementById('lattice-mode').value === 'pixel');
+    assert.ok(await page.isVisible('#cell-rows'));
+    assert.ok(await page.isHidden('#measured-lattice'));
+  } finally {
+    await browser.close();
+  }
+});

@@ -68,7 +68,11 @@ export function createResultsCard({ onSelect, onOpenModel, onApply }) {
       if (model) {
         const s = model.info.settings;
         const from = model.source === 'fit' ? 'From this fit' : `From the file ${model.source}`;
-        modelInfo.textContent = `${from}: ${s.group} · cell ${s.cell_rows} x ${s.cell_cols} · ${model.info.generators} generator${model.info.generators === 1 ? '' : 's'} · images ${size(model.info.height, model.info.width)}.`;
+        const count = `${model.info.generators} generator${model.info.generators === 1 ? '' : 's'}`;
+        const grid = model.info.grid;
+        modelInfo.textContent = grid
+          ? `${from}: ${s.group} on the lattice grid (a lattice-grid model) · ${grid.cells[0]} x ${grid.cells[1]} cells of ${grid.samples[0]} x ${grid.samples[1]} samples · ${count} · grid ${size(model.info.height, model.info.width)} samples.`
+          : `${from}: ${s.group} · cell ${s.cell_rows} x ${s.cell_cols} · ${count} · images ${size(model.info.height, model.info.width)}.`;
       } else {
         modelInfo.textContent = 'No model yet: fit the stack or open a saved model.';
       }

@@ -1,11 +1,25 @@
 // The centre: original · fitted · residual with one shared zoom and pan, the
-// lattice cell drawn on top if asked, a read-out of the values under the
+// lattice drawn on top if asked (the cell on the pixel grid, or a measured
+// lattice: its two vectors from the grid origin and the lines through it), a read-out of the values under the
 // pointer, and the strip of thumbnails of the stack.
 
 import { number, size } from '../format.js';
 
 const KINDS = ['original', 'fitted', 'residual'];
 const ZOOM_STEP = 1.5;
+
+// The measured lattice to draw: after a fit on it, the fit's grid (its cell,
+// origin at the symmetry centre, and number of cells); else the measured
+// vectors from the survey's best centre, or from the image centre.
+function measuredLattice(state) {
+  const fit = state.latticeFit;
+  if (fit && state.model?.source === 'fit') return { a1: fit.grid.cell[0], a2: fit.grid.cell[1], origin: fit.grid.origin, cells: fit.grid.cells };
+  const m = state.lattice;
+  const image = state.images[0];
+  if (!m || !image) return null;
+  const origin = state.survey?.groups[0]?.centre ?? [image.height / 2, image.width / 2];
+  return { a1: m.a1, a2: m.a2, origin };
+}
 
 export function createViewer({ onSelect }) {
   const panes = KINDS.map((kind) => ({ kind, canvas: document.getElementById(`pane-${kind}`), picture: null, bitmap: null }));
@@ -19,6 +33,7 @@ export function createViewer({ onSelect }) {
   const view = { scale: null, cx: 0, cy: 0 };
   let imageSize = null;
   let cell = null;
+  let lattice = null; // { a1, a2, origin, cells? } in pixels, (row, column)
   let thumbKey = '';
   let selected = 0;
   let hasModel = false;
@@ -57,7 +72,8 @@ export function createViewer({ onSelect }) {
       ctx.setTransform(s, 0, 0, s, w / 2 - cx * s, h / 2 - cy * s);
       ctx.imageSmoothingEnabled = s < 1;
       ctx.drawImage(pane.bitmap, 0, 0);
-      if (showCell.checked && cell) drawCell(ctx, s, cellColour);
+      if (showCell.checked && lattice) drawLattice(ctx, s, cellColour);
+      else if (showCell.checked && cell) drawCell(ctx, s, cellColour);
     }
     zoomLevel.textContent = view.scale === null ? 'whole' : `${Math.round(view.scale * 100 / (window.devicePixelRatio || 1))} %`;
   }
@@ -78,6 +94,47 @@ export function createViewer({ onSelect }) {
       ctx.lineTo(x, height);
     }
     ctx.stroke();
+  }
+
+  // A measured lattice: the cells of the fit's grid (the resampled area) or
+  // a block of cells around the origin, clipped to the image, and the two
+  // vectors drawn thicker from the origin. Pixel (r, c) has its centre at
+  // (c + 0.5, r + 0.5).
+  function drawLattice(ctx, s, colour) {
+    const { a1, a2, origin, cells } = lattice;
+    const { width, height } = imageSize;
+    const at = (u, v) => [origin[1] + u * a1[1] + v * a2[1] + 0.5, origin[0] + u * a1[0] + v * a2[0] + 0.5];
+    const [u0, u1, v0, v1] = cells ? [0, cells[0], 0, cells[1]] : [-2, 3, -2, 3];
+    ctx.save();
+    ctx.beginPath();
+    ctx.rect(0, 0, width, height);
+    ctx.clip();
+    ctx.strokeStyle = colour;
+    ctx.globalAlpha = 0.8;
+    ctx.lineWidth = 1 / s;
+    ctx.beginPath();
+    for (let u = u0; u <= u1; u++) {
+      ctx.moveTo(...at(u, v0));
+      ctx.lineTo(...at(u, v1));
+    }
+    for (let v = v0; v <= v1; v++) {
+      ctx.moveTo(...at(u0, v));
+      ctx.lineTo(...at(u1, v));
+    }
+    ctx.stroke();
+    ctx.globalAlpha = 1;
+    ctx.lineWidth = 3 / s;
+    ctx.beginPath();
+    for (const [u, v] of [[1, 0], [0, 1]]) {
+      ctx.moveTo(...at(0, 0));
+      ctx.lineTo(...at(u, v));
+    }
+    ctx.stroke();
+    ctx.beginPath();
+    ctx.arc(...at(0, 0), 3 / s, 0, 2 * Math.PI);
+    ctx.fillStyle = colour;
+    ctx.fill();
+    ctx.restore();
   }
 
   function centre() {
@@ -244,6 +301,7 @@ export function createViewer({ onSelect }) {
       document.getElementById('next-image').disabled = state.selected >= state.images.length - 1;
       const s = state.settings;
       cell = s.cell_rows > 0 && s.cell_cols > 0 ? { rows: s.cell_rows, cols: s.cell_cols, origin: s.origin } : null;
+      lattice = s.lattice ? measuredLattice(state) : null;
       document.getElementById('fitted-count').textContent = state.model ? `(L = ${state.model.info.generators})` : '';
       renderThumbnails(state);
       draw();

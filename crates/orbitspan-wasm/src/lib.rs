@@ -13,8 +13,10 @@
 //! file and the problem).
 
 mod js_values;
+mod measured_lattice;
 mod page_settings;
 mod session;
 
-pub use page_settings::PageSettings;
+pub use measured_lattice::{LatticeFit, LatticeInfo};
+pub use page_settings::{LatticeChoice, PageSettings};
 pub use session::{residual_legend, Session};

@@ -1,5 +1,6 @@
 //! The fit settings as the page writes them: the plane group as its name
-//! (`"p4m"`, `"pmg:ba"`) instead of the core's enum form.
+//! (`"p4m"`, `"pmg:ba"`) instead of the core's enum form, and optionally a
+//! measured lattice to resample onto before fitting.
 
 use orbitspan_core::plane_group::PlaneGroup;
 use orbitspan_core::{BandSpec, FitSettings, Result};
@@ -7,7 +8,11 @@ use serde::{Deserialize, Serialize};
 
 /// `{ group, cell_rows, cell_cols, origin: [row, col], generators, band, lattice_coords }`
 /// with `band` either `null`, `{ kind: "frequencies", value: M }` or
-/// `{ kind: "radius", value: R }`.
+/// `{ kind: "radius", value: R }`. With `lattice` (`null`, `{ mode: "detect" }`
+/// or `{ mode: "vectors", a1: [r, c], a2: [r, c] }`) the fit runs on a grid
+/// along the measured lattice with `samples` per cell side (`null`: about one
+/// per pixel), as `orbitspan fit --lattice`; the cell, origin and
+/// `lattice_coords` are then not used.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PageSettings {
     pub group: String,
@@ -18,6 +23,19 @@ pub struct PageSettings {
     pub band: Option<BandSpec>,
     #[serde(default)]
     pub lattice_coords: bool,
+    #[serde(default)]
+    pub lattice: Option<LatticeChoice>,
+    #[serde(default)]
+    pub samples: Option<usize>,
+}
+
+/// Where the lattice of a measured fit comes from: measured from the
+/// stack's spectrum, or two vectors in pixels, `(row, column)` components.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "mode", rename_all = "lowercase")]
+pub enum LatticeChoice {
+    Detect,
+    Vectors { a1: [f64; 2], a2: [f64; 2] },
 }
 
 impl PageSettings {
@@ -44,6 +62,8 @@ impl PageSettings {
             generators: settings.generators,
             band: settings.band,
             lattice_coords: settings.lattice_coords,
+            lattice: None,
+            samples: None,
         }
     }
 }
@@ -63,6 +83,8 @@ mod tests {
             generators: 4,
             band: Some(BandSpec::Frequencies(40)),
             lattice_coords: false,
+            lattice: None,
+            samples: None,
         };
         let core = page.to_core().unwrap();
         assert_eq!(core.group.symbol, GroupSymbol::Pmg);

@@ -1,12 +1,15 @@
 //! [`Session`]: the state the page's worker keeps between messages.
 
 use crate::js_values::{error, from_js, picture, picture_with_values, set, to_js};
-use crate::page_settings::PageSettings;
+use crate::measured_lattice::{LatticeFit, Measured};
+use crate::page_settings::{LatticeChoice, PageSettings};
 use js_sys::{Array, Function, Object, Uint8Array};
 use orbitspan_core::image_io::{self, DecodeLimits};
+use orbitspan_core::lattice_detect::{self, DetectOptions, Detection};
 use orbitspan_core::plane_group::{GroupSymbol, PlaneGroup, Setting};
 use orbitspan_core::report::Report;
 use orbitspan_core::stack::cut_tiles;
+use orbitspan_core::survey;
 use orbitspan_core::{demo, fit, npy, picture as pictures, Error, FitSettings, Image, Model, Stack};
 use wasm_bindgen::prelude::*;
 
@@ -22,6 +25,11 @@ pub struct Session {
     /// The model cut to its first `l` generators when the page chose `l`
     /// below the full count (the fit's spaces are nested: MATH.md §5).
     chosen: Option<Model>,
+    /// The stack's detected lattice, kept until the stack changes.
+    detection: Option<Detection>,
+    /// Set when the model comes from a fit on a measured lattice: the model
+    /// lives on this grid, not on the pixels.
+    lattice_fit: Option<LatticeFit>,
 }
 
 impl Default for Session {
@@ -74,7 +82,7 @@ fn offered_groups() -> Vec<PlaneGroup> {
 impl Session {
     #[wasm_bindgen(constructor)]
     pub fn new() -> Session {
-        Session { images: Vec::new(), report: None, model: None, chosen: None }
+        Session { images: Vec::new(), report: None, model: None, chosen: None, detection: None, lattice_fit: None }
     }
 
     /// Decodes one file (PNG, JPEG, TIFF; pages of a multi-page TIFF become
@@ -97,13 +105,30 @@ impl Session {
         self.push_checked(items)
     }
 
-    /// Adds the invented example stack (core `demo::woven_cloth`). Returns
+    /// Adds an invented example stack: `"woven-cloth"` (core
+    /// `demo::woven_cloth`, also when `which` is not given) or
+    /// `"honeycomb-micrograph"` (core `demo::honeycomb_micrograph`). Returns
     /// `{ name, description, settings, images: [{ label, height, width }] }`
-    /// with the example's suggested settings.
+    /// with the example's suggested settings; for a stack whose lattice is
+    /// not on the pixel grid they say to measure it (`lattice: { mode:
+    /// "detect" }`, `samples` the suggested cell side), as `orbitspan demo`
+    /// suggests.
     #[wasm_bindgen(js_name = addExample)]
-    pub fn add_example(&mut self) -> JsResult<Object> {
-        let example = demo::woven_cloth();
-        let settings = PageSettings::from_core(&example.suggested);
+    pub fn add_example(&mut self, which: Option<String>) -> JsResult<Object> {
+        let example = match which.as_deref() {
+            None | Some("woven-cloth") => demo::woven_cloth(),
+            Some("honeycomb-micrograph") => demo::honeycomb_micrograph(),
+            Some(other) => {
+                return Err(error(Error::input(format!(
+                    "unknown example '{other}': choose woven-cloth or honeycomb-micrograph"
+                ))))
+            }
+        };
+        let mut settings = PageSettings::from_core(&example.suggested);
+        if example.lattice.is_some() {
+            settings.lattice = Some(LatticeChoice::Detect);
+            settings.samples = Some(example.suggested.cell_rows);
+        }
         let images = self.push_checked(example.images)?;
         let out = Object::new();
         set(&out, "name", example.name);
@@ -125,6 +150,7 @@ impl Session {
         }
         let added = image_list(&items);
         self.images.extend(items);
+        self.detection = None;
         Ok(added)
     }
 
@@ -135,6 +161,7 @@ impl Session {
             return Err(error(Error::input(format!("no image {index}: the stack has {}", self.images.len()))));
         }
         self.images.remove(index);
+        self.detection = None;
         Ok(())
     }
 
@@ -142,6 +169,7 @@ impl Session {
     #[wasm_bindgen(js_name = clearImages)]
     pub fn clear_images(&mut self) {
         self.images.clear();
+        self.detection = None;
     }
 
     /// `[{ label, height, width }]` of the stack.
@@ -172,9 +200,16 @@ impl Session {
     /// every group (or `null`); each offered group says whether it can be used
     /// with these settings and, if not, why. With an empty stack nothing can
     /// be checked: every group is offered and `problem` says so.
+    ///
+    /// With a measured lattice (`settings.lattice`), a group is usable when
+    /// the lattice type allows it and its grid fits inside the images;
+    /// `problem` says why the lattice cannot be measured, if so.
     #[wasm_bindgen(js_name = checkSettings)]
-    pub fn check_settings(&self, settings: JsValue) -> JsResult<Object> {
+    pub fn check_settings(&mut self, settings: JsValue) -> JsResult<Object> {
         let page: PageSettings = from_js(settings, "settings")?;
+        if let Some(choice) = page.lattice {
+            return self.check_measured(choice, page.samples);
+        }
         let base = FitSettings { group: PlaneGroup::standard(GroupSymbol::P1), ..page.to_core().map_err(error)? };
         let size = self.images.first().map(|(_, i)| (i.height, i.width));
         let problem = match size {
@@ -190,37 +225,176 @@ impl Session {
                     }
                     _ => None,
                 };
-                let o = Object::new();
-                set(&o, "name", group.name());
-                let full = match group.setting {
-                    Setting::Standard => group.symbol.full().to_string(),
-                    Setting::Exchanged => format!("{}, axes exchanged", group.symbol.full()),
-                };
-                set(&o, "full", full);
-                set(&o, "ok", reason.is_none());
-                set(&o, "reason", reason.map_or(JsValue::NULL, |r| JsValue::from_str(&r)));
-                JsValue::from(o)
+                group_entry(group, reason)
             })
             .collect();
+        Ok(check_result(problem, groups))
+    }
+
+    fn check_measured(&mut self, choice: LatticeChoice, samples: Option<usize>) -> JsResult<Object> {
+        let Some((_, first)) = self.images.first() else {
+            let groups = offered_groups().into_iter().map(|g| group_entry(g, None)).collect();
+            return Ok(check_result(Some("add images to measure their lattice".to_string()), groups));
+        };
+        let (h, w) = (first.height, first.width);
+        let measured = match self.measure(choice) {
+            Ok(m) => m,
+            Err(e) => {
+                let groups = offered_groups()
+                    .into_iter()
+                    .map(|g| group_entry(g, Some("the lattice is not known yet".to_string())))
+                    .collect();
+                return Ok(check_result(Some(e.to_string()), groups));
+            }
+        };
+        let groups = offered_groups()
+            .into_iter()
+            .map(|group| {
+                let reason = match measured.cell_for(&group) {
+                    Err(why) => Some(why),
+                    Ok(cell) => survey::grid_for(h, w, cell, &group, samples).err().map(|e| e.to_string()),
+                };
+                group_entry(group, reason)
+            })
+            .collect();
+        Ok(check_result(None, groups))
+    }
+
+    /// The lattice of `choice`; a detection is kept until the stack changes.
+    fn measure(&mut self, choice: LatticeChoice) -> Result<Measured, Error> {
+        let stack = Stack::new(self.images.clone())?;
+        let cached = &mut self.detection;
+        Measured::of(choice, &stack, |stack| {
+            if let Some(d) = cached {
+                return Ok(d.clone());
+            }
+            let d = lattice_detect::detect(stack, &DetectOptions::default())?;
+            *cached = Some(d.clone());
+            Ok(d)
+        })
+    }
+
+    /// Measures the stack's lattice (core `lattice_detect::detect`, default
+    /// tolerances, as `orbitspan detect`). Returns `{ kind, a1, a2, lengths,
+    /// angle, conventional, uncertainty: { lengths, angle }, peaks }`:
+    /// vectors `(row, column)` in pixels, the reduced basis
+    /// (`|a1| ≤ |a2|`, angle in [60°, 90°]), angle in degrees; "no lattice
+    /// found" is a bad-input error.
+    #[wasm_bindgen(js_name = detectLattice)]
+    pub fn detect_lattice(&mut self) -> JsResult<JsValue> {
+        self.lattice_of(serde_wasm_bindgen::to_value(&LatticeChoice::Detect).map_err(|e| error(Error::Internal(e.to_string())))?)
+    }
+
+    /// The lattice of `choice` (`{ mode: "detect" }` or `{ mode: "vectors",
+    /// a1, a2 }`) as [`Session::detect_lattice`] describes it; typed vectors
+    /// are reduced and classified, with `uncertainty` and `peaks` `null`.
+    #[wasm_bindgen(js_name = latticeOf)]
+    pub fn lattice_of(&mut self, choice: JsValue) -> JsResult<JsValue> {
+        let choice: LatticeChoice = from_js(choice, "lattice")?;
+        let measured = self.measure(choice).map_err(error)?;
+        to_js(&measured.info())
+    }
+
+    /// The symmetry survey (core `survey::survey`, as `orbitspan survey`):
+    /// `options = { lattice, samples, generators }`. Returns `{ lattice,
+    /// generators, groups: [{ group, cell, deviation, cell_deviation,
+    /// noise_level, consistent, order, centre, relative_error }] }`, ranked:
+    /// consistent groups first, larger groups first among them, then by
+    /// cell deviation. Calls `progress(stage, fraction)`.
+    pub fn survey(&mut self, options: JsValue, progress: &Function) -> JsResult<JsValue> {
+        #[derive(serde::Deserialize)]
+        struct Options {
+            lattice: LatticeChoice,
+            #[serde(default)]
+            samples: Option<usize>,
+            generators: usize,
+        }
+        let options: Options = from_js(options, "survey options")?;
+        let measured = self.measure(options.lattice).map_err(error)?;
+        let stack = self.stack()?;
+        let rows = survey::survey(
+            &stack,
+            measured.lattice_type(),
+            [measured.reduced.a1, measured.reduced.a2],
+            [measured.conventional.a1, measured.conventional.a2],
+            options.samples,
+            options.generators,
+            &mut progress_callback(progress),
+        )
+        .map_err(error)?;
         let out = Object::new();
-        set(&out, "problem", problem.map_or(JsValue::NULL, |p| JsValue::from_str(&p)));
-        set(&out, "groups", groups);
-        Ok(out)
+        set(&out, "lattice", to_js(&measured.info())?);
+        set(&out, "generators", options.generators as u32);
+        set(&out, "groups", to_js(&rows)?);
+        Ok(out.into())
     }
 
     /// Fits the stack (core `fit::fit`), calling `progress(stage, fraction)`
     /// as it goes (return `false` to cancel). Keeps the model and returns the
     /// report (the `report.json` structure as a plain object).
+    ///
+    /// With `settings.lattice`, fits on the measured lattice as `orbitspan
+    /// fit --lattice` does (core `survey::fit_measured`: resample onto the
+    /// lattice, find the group's symmetry centre, fit on the grid): the
+    /// report's curve and per-image errors are then on the lattice grid. A
+    /// group the lattice type does not allow is refused with the reason.
     pub fn fit(&mut self, settings: JsValue, progress: &Function) -> JsResult<JsValue> {
         let page: PageSettings = from_js(settings, "settings")?;
         let settings = page.to_core().map_err(error)?;
         let stack = self.stack()?;
-        let result = fit::fit(&stack, &settings, &mut progress_callback(progress)).map_err(error)?;
+        let (result, lattice_fit) = match page.lattice {
+            None => (fit::fit(&stack, &settings, &mut progress_callback(progress)).map_err(error)?, None),
+            Some(choice) => {
+                let measured = self.measure(choice).map_err(error)?;
+                let cell = measured.cell_for(&settings.group).map_err(|why| error(Error::input(why)))?;
+                let m = survey::fit_measured(
+                    &stack,
+                    cell,
+                    settings.group,
+                    page.samples,
+                    settings.generators,
+                    settings.band,
+                    None,
+                    &mut progress_callback(progress),
+                )
+                .map_err(error)?;
+                let info = LatticeFit::new(&measured, &m);
+                (m.fit, Some(info))
+            }
+        };
         let report = to_js(&result.report)?;
         self.report = Some(result.report);
         self.model = Some(result.model);
         self.chosen = None;
+        self.lattice_fit = lattice_fit;
         Ok(report)
+    }
+
+    /// The measured lattice of the current model, or `null` when the model
+    /// is on the pixel grid: `{ lattice, grid: { origin, cell, samples,
+    /// cells }, resampling_error, image_deviation, cell_deviation,
+    /// noise_level }`.
+    #[wasm_bindgen(js_name = latticeFit)]
+    pub fn lattice_fit(&self) -> JsResult<JsValue> {
+        match &self.lattice_fit {
+            Some(info) => to_js(info),
+            None => Ok(JsValue::NULL),
+        }
+    }
+
+    /// Takes back what [`Session::lattice_fit`] returned, after the page
+    /// restarted its worker and reopened the model.
+    #[wasm_bindgen(js_name = restoreLatticeFit)]
+    pub fn restore_lattice_fit(&mut self, info: JsValue) -> JsResult<()> {
+        self.lattice_fit = Some(from_js(info, "earlier lattice fit")?);
+        Ok(())
+    }
+
+    /// `lattice.json` text as `orbitspan fit --lattice --out` writes it.
+    #[wasm_bindgen(js_name = latticeJson)]
+    pub fn lattice_json(&self) -> JsResult<String> {
+        let info = self.lattice_fit.as_ref().ok_or_else(|| error(Error::input("the model is not on a measured lattice")))?;
+        serde_json::to_string_pretty(&info.lattice_json()).map_err(|e| error(Error::Internal(format!("lattice: {e}"))))
     }
 
     /// The last fit's report as `report.json` text (as the command line writes it).
@@ -268,7 +442,10 @@ impl Session {
         self.model_info()
     }
 
-    /// `{ settings, height, width, generators }` of the current model.
+    /// `{ settings, height, width, generators, grid }` of the current model;
+    /// `grid` is `null` for a model on the pixel grid, else `{ samples,
+    /// cells }` of the lattice grid it was fitted on (its `height` and
+    /// `width` are then that grid's size in samples).
     #[wasm_bindgen(js_name = modelInfo)]
     pub fn model_info(&self) -> JsResult<JsValue> {
         let model = self.current_model()?;
@@ -277,24 +454,61 @@ impl Session {
         set(&out, "height", model.height() as u32);
         set(&out, "width", model.width() as u32);
         set(&out, "generators", model.generators().len() as u32);
+        let grid = match &self.lattice_fit {
+            Some(info) => to_js(&serde_json::json!({ "samples": info.grid.samples, "cells": info.grid.cells }))?,
+            None => JsValue::NULL,
+        };
+        set(&out, "grid", grid);
         Ok(out.into())
+    }
+
+    /// The data the current model acts on for image `index` (the image, or
+    /// after a measured fit the image resampled onto the model's grid) and
+    /// its projection.
+    fn fitted(&self, image: &Image) -> JsResult<(Image, Image)> {
+        let model = self.current_model()?;
+        let data = match &self.lattice_fit {
+            Some(info) => info.grid.to_lattice(image),
+            None => image.clone(),
+        };
+        let fitted = model.project(&data).map_err(error)?;
+        Ok((data, fitted))
     }
 
     /// Pictures of image `index`: `{ original, fitted, residual, problem }`;
     /// each picture is `{ height, width, rgba, values }`. `fitted` and
     /// `residual` (residual = original − fitted, on a diverging scale) are
     /// `null` without a model or when the model does not fit the image, and
-    /// `problem` then says why.
+    /// `problem` then says why. After a fit on a measured lattice, fitted
+    /// and residual are computed on the lattice grid and mapped back to the
+    /// pixels (core `LatticeGrid::to_pixels`); outside the resampled area
+    /// the residual is 0, the fitted picture shows the mean of the fitted
+    /// area and their `values` are NaN.
     pub fn pictures(&self, index: usize) -> JsResult<Object> {
         let image = self.image(index)?;
         let out = Object::new();
         set(&out, "original", picture_with_values(image, &pictures::grey_rgba(image)));
-        let projected = self.current_model().and_then(|m| m.project(image).map_err(error));
+        let projected = self.fitted(image).map(|(data, fitted)| {
+            let residual = residual_of(&data, &fitted);
+            match &self.lattice_fit {
+                None => (fitted.clone(), fitted, residual.clone(), residual),
+                Some(info) => {
+                    let (h, w) = (image.height, image.width);
+                    let (fitted, mask) = info.grid.to_pixels(&fitted, h, w);
+                    let (residual, _) = info.grid.to_pixels(&residual, h, w);
+                    let inside = mask.iter().filter(|&&m| m).count().max(1);
+                    let mean = fitted.pixels.iter().zip(&mask).filter(|(_, &m)| m).map(|(v, _)| v).sum::<f64>() / inside as f64;
+                    let outside = |img: &Image, fill: f64| {
+                        Image::new(h, w, img.pixels.iter().zip(&mask).map(|(&v, &m)| if m { v } else { fill }).collect())
+                    };
+                    (outside(&fitted, mean), outside(&fitted, f64::NAN), outside(&residual, 0.0), outside(&residual, f64::NAN))
+                }
+            }
+        });
         match projected {
-            Ok(fitted) => {
-                let residual = residual_of(image, &fitted);
-                set(&out, "fitted", picture_with_values(&fitted, &pictures::grey_rgba(&fitted)));
-                set(&out, "residual", picture_with_values(&residual, &pictures::diverging_rgba(&residual)));
+            Ok((fitted, fitted_values, residual, residual_values)) => {
+                set(&out, "fitted", picture_with_values(&fitted_values, &pictures::grey_rgba(&fitted)));
+                set(&out, "residual", picture_with_values(&residual_values, &pictures::diverging_rgba(&residual)));
                 set(&out, "problem", JsValue::NULL);
             }
             Err(problem) => {
@@ -330,15 +544,37 @@ impl Session {
         let model = Model::from_bytes(name, bytes).map_err(error)?;
         self.model = Some(model);
         self.chosen = None;
+        self.lattice_fit = None;
         self.model_info()
     }
 
     /// Applies the current model to the stack: per-image
     /// `[{ file, energy, error, relative_error }]` (core `Model::evaluate`).
+    /// A model from a fit on a measured lattice is applied to the images
+    /// resampled onto its grid (errors on the grid). A model file does not
+    /// hold a grid: applied to images of another size, the message says that
+    /// a lattice-grid model needs images on that grid.
     #[wasm_bindgen(js_name = applyModel)]
     pub fn apply_model(&self, progress: &Function) -> JsResult<JsValue> {
         let model = self.current_model()?;
-        let errors = model.evaluate(&self.stack()?, &mut progress_callback(progress)).map_err(error)?;
+        let stack = match &self.lattice_fit {
+            Some(info) => Stack::new(self.images.iter().map(|(l, i)| (l.clone(), info.grid.to_lattice(i))).collect()).map_err(error)?,
+            None => self.stack()?,
+        };
+        let grid_model = model.settings().lattice_coords;
+        let differs = stack.height() != model.height() || stack.width() != model.width();
+        if self.lattice_fit.is_none() && grid_model && differs {
+            return Err(error(Error::input(format!(
+                "the model is on a lattice grid of {} x {} samples and the images are {} x {} pixels; \
+                 a model fitted on a measured lattice applies only to images resampled onto its grid: \
+                 fit this stack with the measured lattice instead",
+                model.height(),
+                model.width(),
+                stack.height(),
+                stack.width()
+            ))));
+        }
+        let errors = model.evaluate(&stack, &mut progress_callback(progress)).map_err(error)?;
         to_js(&errors)
     }
 
@@ -352,8 +588,8 @@ impl Session {
             "approximations" | "residuals" => {
                 let mut out = Vec::with_capacity(self.images.len());
                 for (_, image) in &self.images {
-                    let fitted = model.project(image).map_err(error)?;
-                    out.push(if kind == "residuals" { residual_of(image, &fitted) } else { fitted });
+                    let (data, fitted) = self.fitted(image)?;
+                    out.push(if kind == "residuals" { residual_of(&data, &fitted) } else { fitted });
                 }
                 out
             }
@@ -366,6 +602,9 @@ impl Session {
 
     /// PNG bytes of one picture: `original`, `fitted` or `residual` of image
     /// `index`, or `generator` number `index` (0-based) of the current model.
+    /// After a fit on a measured lattice `fitted` and `residual` are on the
+    /// lattice grid (as the command line writes them) and `residual-pixels`
+    /// is the residual mapped back to the pixels (0 outside the resampled area).
     pub fn png(&self, kind: &str, index: usize) -> JsResult<Uint8Array> {
         let (image, rgba) = match kind {
             "original" => {
@@ -374,16 +613,28 @@ impl Session {
                 (image, rgba)
             }
             "fitted" | "residual" => {
-                let image = self.image(index)?;
-                let fitted = self.current_model()?.project(image).map_err(error)?;
+                let (data, fitted) = self.fitted(self.image(index)?)?;
                 if kind == "fitted" {
                     let rgba = pictures::grey_rgba(&fitted);
                     (fitted, rgba)
                 } else {
-                    let residual = residual_of(image, &fitted);
+                    let residual = residual_of(&data, &fitted);
                     let rgba = pictures::diverging_rgba(&residual);
                     (residual, rgba)
                 }
+            }
+            "residual-pixels" => {
+                let image = self.image(index)?;
+                let info = self.lattice_fit.as_ref().ok_or_else(|| error(Error::input("the model is not on a measured lattice")))?;
+                let (data, fitted) = self.fitted(image)?;
+                let (back, mask) = info.grid.to_pixels(&residual_of(&data, &fitted), image.height, image.width);
+                let masked = Image::new(
+                    back.height,
+                    back.width,
+                    back.pixels.iter().zip(&mask).map(|(&v, &m)| if m { v } else { 0.0 }).collect(),
+                );
+                let rgba = pictures::diverging_rgba(&masked);
+                (masked, rgba)
             }
             "generator" => {
                 let g = self.current_model()?.generators().get(index).cloned().ok_or_else(|| {
@@ -405,6 +656,28 @@ pub fn residual_legend(width: usize) -> Object {
     let width = width.max(2);
     let ramp: Vec<f64> = (0..width).map(|i| -1.0 + 2.0 * i as f64 / (width - 1) as f64).collect();
     picture(1, width, &pictures::diverging_rgba(&Image::new(1, width, ramp)))
+}
+
+/// `{ name, full, ok, reason }` of one offered group.
+fn group_entry(group: PlaneGroup, reason: Option<String>) -> JsValue {
+    let o = Object::new();
+    set(&o, "name", group.name());
+    let full = match group.setting {
+        Setting::Standard => group.symbol.full().to_string(),
+        Setting::Exchanged => format!("{}, axes exchanged", group.symbol.full()),
+    };
+    set(&o, "full", full);
+    set(&o, "ok", reason.is_none());
+    set(&o, "reason", reason.map_or(JsValue::NULL, |r| JsValue::from_str(&r)));
+    o.into()
+}
+
+/// `{ problem, groups }` of a settings check.
+fn check_result(problem: Option<String>, groups: Array) -> Object {
+    let out = Object::new();
+    set(&out, "problem", problem.map_or(JsValue::NULL, |p| JsValue::from_str(&p)));
+    set(&out, "groups", groups);
+    out
 }
 
 /// `f − P_V f`, pixel by pixel.

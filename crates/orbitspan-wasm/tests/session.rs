@@ -4,9 +4,11 @@
 #![cfg(target_arch = "wasm32")]
 
 use js_sys::{Array, Function, Reflect, Uint8Array};
+use orbitspan_core::lattice_detect::{self, DetectOptions};
+use orbitspan_core::picture as pictures_core;
 use orbitspan_core::report::{ImageError, Report};
-use orbitspan_core::{fit, npy, FitSettings, Image, Silent, Stack};
-use orbitspan_wasm::{PageSettings, Session};
+use orbitspan_core::{fit, npy, survey, BandSpec, FitSettings, Image, Silent, Stack};
+use orbitspan_wasm::{LatticeChoice, LatticeFit, PageSettings, Session};
 use wasm_bindgen::{JsCast, JsValue};
 use wasm_bindgen_test::wasm_bindgen_test;
 
@@ -56,7 +58,17 @@ fn session_with_tiny_stack() -> Session {
 }
 
 fn page_settings(group: &str, cell_rows: usize, cell_cols: usize, generators: usize) -> PageSettings {
-    PageSettings { group: group.into(), cell_rows, cell_cols, origin: [0, 0], generators, band: None, lattice_coords: false }
+    PageSettings {
+        group: group.into(),
+        cell_rows,
+        cell_cols,
+        origin: [0, 0],
+        generators,
+        band: None,
+        lattice_coords: false,
+        lattice: None,
+        samples: None,
+    }
 }
 
 fn js(settings: &PageSettings) -> JsValue {
@@ -159,7 +171,7 @@ fn cancelling_keeps_the_stack_and_the_next_fit_runs() {
 
 #[wasm_bindgen_test]
 fn settings_check_disables_groups_with_a_reason() {
-    let session = session_with_tiny_stack();
+    let mut session = session_with_tiny_stack();
     let check = session.check_settings(js(&page_settings("p1", 8, 4, 2))).unwrap();
     assert!(get(&check, "problem").is_null());
     let groups: Array = get(&check, "groups").dyn_into().unwrap();
@@ -252,7 +264,7 @@ fn pictures_and_arrays_hold_original_fitted_and_residual() {
 #[wasm_bindgen_test]
 fn the_example_stack_comes_with_its_settings() {
     let mut session = Session::new();
-    let example = session.add_example().unwrap();
+    let example = session.add_example(None).unwrap();
     let settings: PageSettings = serde_wasm_bindgen::from_value(get(&example, "settings")).unwrap();
     let demo = orbitspan_core::demo::woven_cloth();
     assert_eq!(settings, PageSettings::from_core(&demo.suggested));
@@ -274,4 +286,161 @@ fn the_residual_legend_runs_from_blue_through_white_to_red() {
     let (left, right) = (pixel(0), pixel(100));
     assert!(left[2] > left[0] + 50, "left end is blue: {left:?}");
     assert!(right[0] > right[2] + 50, "right end is red: {right:?}");
+}
+
+// ---- measured lattices ------------------------------------------------------
+
+/// The honeycomb micrograph example in a session, and its suggested page settings.
+fn micrograph_session() -> (Session, PageSettings) {
+    let mut session = Session::new();
+    let example = session.add_example(Some("honeycomb-micrograph".into())).unwrap();
+    (session, serde_wasm_bindgen::from_value(get(&example, "settings")).unwrap())
+}
+
+fn numbers(value: &JsValue) -> Vec<f64> {
+    Array::from(value).iter().map(|v| v.as_f64().unwrap()).collect()
+}
+
+#[wasm_bindgen_test]
+fn the_micrograph_example_asks_to_measure_its_lattice() {
+    let (_, settings) = micrograph_session();
+    let demo = orbitspan_core::demo::honeycomb_micrograph();
+    assert_eq!(settings.group, "p6m");
+    assert_eq!(settings.lattice, Some(LatticeChoice::Detect));
+    assert_eq!(settings.samples, Some(demo.suggested.cell_rows));
+    assert_eq!(settings.generators, 1);
+    assert_eq!(settings.band, Some(BandSpec::Frequencies(61)));
+}
+
+#[wasm_bindgen_test]
+fn detection_on_the_micrograph_finds_its_lattice() {
+    let (mut session, _) = micrograph_session();
+    let found = session.detect_lattice().unwrap();
+    assert_eq!(get(&found, "kind").as_string().unwrap(), "hexagonal");
+    // The demo is generated with spacing 9.6 px and 60 degrees between the vectors (core demo::honeycomb_micrograph).
+    for length in numbers(&get(&found, "lengths")) {
+        assert!((length - 9.6).abs() < 0.01, "length {length} px");
+    }
+    let angle = get(&found, "angle").as_f64().unwrap();
+    assert!((angle - 60.0).abs() < 0.05, "angle {angle} degrees");
+    assert!(get(&found, "peaks").as_f64().unwrap() >= 2.0);
+    // The same numbers as the core's detection.
+    let core = lattice_detect::detect(&Stack::new(orbitspan_core::demo::honeycomb_micrograph().images).unwrap(), &DetectOptions::default()).unwrap();
+    assert_eq!(numbers(&get(&found, "a1")), core.vectors.a1.to_vec());
+    assert_eq!(numbers(&get(&found, "a2")), core.vectors.a2.to_vec());
+}
+
+#[wasm_bindgen_test]
+fn a_measured_fit_through_the_facade_gives_the_cores_numbers() {
+    let (mut session, settings) = micrograph_session();
+    let report: Report = serde_wasm_bindgen::from_value(session.fit(js(&settings), &keep_going()).unwrap()).unwrap();
+
+    // The command line's path: detect, reduced cell for p6m, fit_measured.
+    let stack = Stack::new(orbitspan_core::demo::honeycomb_micrograph().images).unwrap();
+    let detection = lattice_detect::detect(&stack, &DetectOptions::default()).unwrap();
+    let cell = [detection.vectors.a1, detection.vectors.a2];
+    let core = settings.to_core().unwrap();
+    let expected = survey::fit_measured(&stack, cell, core.group, Some(10), 1, core.band, None, &mut Silent).unwrap();
+    assert_eq!(report.error_curve.len(), 1);
+    for (a, b) in report.error_curve.iter().zip(&expected.fit.report.error_curve) {
+        assert_close(a.error, b.error, 1e-12, "curve error");
+        assert_close(a.relative_error, b.relative_error, 1e-12, "curve relative error");
+    }
+    for (a, b) in report.images.iter().zip(&expected.fit.report.images) {
+        assert_close(a.error, b.error, 1e-12, &a.file);
+    }
+    // The vacancy is in micrograph-3: the largest error per image (core demo docs).
+    let worst = report.images.iter().max_by(|a, b| a.relative_error.total_cmp(&b.relative_error)).unwrap();
+    assert_eq!(worst.file, "micrograph-3");
+
+    // The model lives on the grid; the page is told which.
+    let info = session.lattice_fit().unwrap();
+    let grid = get(&info, "grid");
+    assert_eq!(numbers(&get(&grid, "origin")), expected.grid.origin.to_vec());
+    let model = session.model_info().unwrap();
+    assert_eq!(get(&model, "height").as_f64(), Some(expected.grid.size()[0] as f64));
+
+    // Applying the fit's model resamples through its grid: the fit's errors again.
+    let applied: Vec<ImageError> = serde_wasm_bindgen::from_value(session.apply_model(&keep_going()).unwrap()).unwrap();
+    for (a, b) in applied.iter().zip(&expected.fit.report.images) {
+        assert_close(a.error, b.error, 1e-9, &a.file);
+    }
+}
+
+#[wasm_bindgen_test]
+fn measured_fit_pictures_are_in_pixel_geometry_with_the_residual_zero_outside_the_grid() {
+    let (mut session, settings) = micrograph_session();
+    session.fit(js(&settings), &keep_going()).unwrap();
+    let pictures = session.pictures(2).unwrap();
+    let residual = get(&pictures, "residual");
+    assert_eq!(get(&residual, "height").as_f64(), Some(160.0));
+    assert_eq!(get(&residual, "width").as_f64(), Some(160.0));
+    let values: Vec<f64> = js_sys::Float64Array::from(get(&residual, "values")).to_vec();
+    // The residual is known exactly where the core's grid maps back (core LatticeGrid::to_pixels mask).
+    let info: LatticeFit = serde_wasm_bindgen::from_value(session.lattice_fit().unwrap()).unwrap();
+    let [gh, gw] = info.grid.size();
+    let (_, mask) = info.grid.to_pixels(&Image::new(gh, gw, vec![0.0; gh * gw]), 160, 160);
+    assert!(values.iter().zip(&mask).all(|(v, &m)| v.is_nan() != m), "values are NaN exactly outside the grid");
+    // The grid of whole cells at 17 degrees covers part of the square, not all of it.
+    let inside: Vec<f64> = values.iter().copied().filter(|v| !v.is_nan()).collect();
+    assert!(inside.len() > 1000 && inside.len() < values.len(), "{} of {} pixels inside", inside.len(), values.len());
+    assert!(inside.iter().any(|v| v.abs() > 1e-3), "the residual inside the grid is not zero");
+    // Drawn as white (the diverging scale's 0) outside.
+    let rgba = js_sys::Uint8ClampedArray::from(get(&residual, "rgba")).to_vec();
+    let first_outside = values.iter().position(|v| v.is_nan()).unwrap();
+    assert_eq!(&rgba[4 * first_outside..4 * first_outside + 3], &pictures_core::diverging_rgba(&Image::new(1, 1, vec![0.0]))[..3]);
+}
+
+#[wasm_bindgen_test]
+fn a_group_the_lattice_does_not_allow_is_refused_with_the_reason() {
+    let (mut session, settings) = micrograph_session();
+    let square = PageSettings { group: "p4m".into(), ..settings.clone() };
+    let (name, message) = error_name_and_message(&session.fit(js(&square), &keep_going()).unwrap_err());
+    assert_eq!(name, "BadInput");
+    assert!(message.contains("p4m needs a square lattice; the lattice is hexagonal"), "{message}");
+    let check = session.check_settings(js(&settings)).unwrap();
+    let groups = Array::from(&get(&check, "groups"));
+    let entry = |name: &str| groups.iter().find(|g| get(g, "name").as_string().as_deref() == Some(name)).unwrap();
+    assert_eq!(get(&entry("p6m"), "ok").as_bool(), Some(true));
+    assert_eq!(get(&entry("p4m"), "ok").as_bool(), Some(false));
+    assert!(get(&entry("pmm"), "reason").as_string().unwrap().contains("rectangular"));
+}
+
+#[wasm_bindgen_test]
+fn typed_vectors_are_reduced_and_classified() {
+    let (mut session, _) = micrograph_session();
+    // a1 + a2 and a2 of a hexagonal lattice of side 10 (120 degrees apart before reduction).
+    let choice = serde_wasm_bindgen::to_value(&LatticeChoice::Vectors { a1: [0.0, 10.0], a2: [8.660254037844386, 5.0 - 10.0] }).unwrap();
+    let lattice = session.lattice_of(choice).unwrap();
+    assert_eq!(get(&lattice, "kind").as_string().unwrap(), "hexagonal");
+    let angle = get(&lattice, "angle").as_f64().unwrap();
+    assert!((angle - 60.0).abs() < 1e-9, "angle {angle}");
+    assert!(get(&lattice, "peaks").is_null());
+    let parallel = serde_wasm_bindgen::to_value(&LatticeChoice::Vectors { a1: [1.0, 2.0], a2: [2.0, 4.0] }).unwrap();
+    let (name, message) = error_name_and_message(&session.lattice_of(parallel).unwrap_err());
+    assert_eq!(name, "BadInput");
+    assert!(message.contains("span no lattice"), "{message}");
+}
+
+#[wasm_bindgen_test]
+fn the_survey_through_the_facade_equals_the_cores_ranking() {
+    let (mut session, _) = micrograph_session();
+    let options = serde_json::json!({ "lattice": { "mode": "detect" }, "samples": 10, "generators": 1 });
+    let options = serde::Serialize::serialize(&options, &serde_wasm_bindgen::Serializer::json_compatible()).unwrap();
+    let out = session.survey(options, &keep_going()).unwrap();
+    let rows: Vec<survey::SurveyRow> = serde_wasm_bindgen::from_value(get(&out, "groups")).unwrap();
+    let stack = Stack::new(orbitspan_core::demo::honeycomb_micrograph().images).unwrap();
+    let d = lattice_detect::detect(&stack, &DetectOptions::default()).unwrap();
+    let expected = survey::survey(
+        &stack,
+        orbitspan_core::plane_group::LatticeType::Hexagonal,
+        [d.vectors.a1, d.vectors.a2],
+        [d.conventional.a1, d.conventional.a2],
+        Some(10),
+        1,
+        &mut Silent,
+    )
+    .unwrap();
+    assert_eq!(rows, expected);
+    assert_eq!(rows[0].group, "p6m");
 }
