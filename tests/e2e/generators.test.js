@@ -18,6 +18,8 @@ test('generators beyond the stack\'s rank are shown as adding nothing', async ()
     await page.fill('#cell-rows', '128');
     await page.fill('#cell-cols', '128');
     await page.fill('#generators', '10');
+    // The rank argument needs all frequencies (the example suggests a band limit).
+    await page.selectOption('#band-kind', 'none');
     await page.waitForFunction(() => !document.getElementById('fit').disabled);
     await page.click('#fit');
     await waitForFit(page);
