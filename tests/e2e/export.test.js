@@ -1,41 +1,12 @@
 // Export: one zip with the pictures, arrays, tables and report.json; the
-// zip is well formed (checked with an independent reader below, CRC-32 per
-// entry) and its report and CSV hold the numbers shown.
+// zip is well formed (checked with an independent reader, harness readZip,
+// CRC-32 per entry) and its report and CSV hold the numbers shown.
 
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { openBrowser, serverUrl, useExampleAndFit, shownCurve, tempDir } from './harness.js';
-import { crc32 } from './png16.js';
-
-// Reads a stored (uncompressed) zip through its central directory (PKWARE APPNOTE 4.3).
-function readZip(bytes) {
-  const end = bytes.lastIndexOf(Buffer.from([0x50, 0x4b, 0x05, 0x06]));
-  assert.ok(end >= 0, 'end of central directory record');
-  const count = bytes.readUInt16LE(end + 10);
-  let at = bytes.readUInt32LE(end + 16);
-  const entries = new Map();
-  for (let i = 0; i < count; i++) {
-    assert.equal(bytes.readUInt32LE(at), 0x02014b50, 'central directory header');
-    const method = bytes.readUInt16LE(at + 10);
-    const crc = bytes.readUInt32LE(at + 16);
-    const size = bytes.readUInt32LE(at + 24);
-    const nameLength = bytes.readUInt16LE(at + 28);
-    const extra = bytes.readUInt16LE(at + 30);
-    const comment = bytes.readUInt16LE(at + 32);
-    const local = bytes.readUInt32LE(at + 42);
-    const name = bytes.subarray(at + 46, at + 46 + nameLength).toString('utf8');
-    assert.equal(method, 0, `${name} is stored`);
-    assert.equal(bytes.readUInt32LE(local), 0x04034b50, 'local file header');
-    const start = local + 30 + bytes.readUInt16LE(local + 26) + bytes.readUInt16LE(local + 28);
-    const data = bytes.subarray(start, start + size);
-    assert.equal(crc32(data), crc, `CRC-32 of ${name}`);
-    entries.set(name, data);
-    at += 46 + nameLength + extra + comment;
-  }
-  return entries;
-}
+import { openBrowser, serverUrl, useExampleAndFit, shownCurve, tempDir, readZip } from './harness.js';
 
 test('export writes one well-formed zip with the shown numbers', async () => {
   const browser = await openBrowser();

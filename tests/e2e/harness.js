@@ -8,11 +8,13 @@
 // --no-build --port 0` themselves and use target/debug/orbitspan.
 
 import { chromium } from 'playwright-core';
+import assert from 'node:assert/strict';
 import { execFileSync, spawn } from 'node:child_process';
 import { mkdtempSync, mkdirSync, readdirSync, readFileSync, writeFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, dirname, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { crc32 } from './png16.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
 export const root = resolve(here, '..', '..');
@@ -213,4 +215,32 @@ export function writeFile(dir, name, bytes) {
   const path = join(dir, name);
   writeFileSync(path, bytes);
   return path;
+}
+
+// Reads a stored (uncompressed) zip through its central directory (PKWARE APPNOTE 4.3).
+export function readZip(bytes) {
+  const end = bytes.lastIndexOf(Buffer.from([0x50, 0x4b, 0x05, 0x06]));
+  assert.ok(end >= 0, 'end of central directory record');
+  const count = bytes.readUInt16LE(end + 10);
+  let at = bytes.readUInt32LE(end + 16);
+  const entries = new Map();
+  for (let i = 0; i < count; i++) {
+    assert.equal(bytes.readUInt32LE(at), 0x02014b50, 'central directory header');
+    const method = bytes.readUInt16LE(at + 10);
+    const crc = bytes.readUInt32LE(at + 16);
+    const size = bytes.readUInt32LE(at + 24);
+    const nameLength = bytes.readUInt16LE(at + 28);
+    const extra = bytes.readUInt16LE(at + 30);
+    const comment = bytes.readUInt16LE(at + 32);
+    const local = bytes.readUInt32LE(at + 42);
+    const name = bytes.subarray(at + 46, at + 46 + nameLength).toString('utf8');
+    assert.equal(method, 0, `${name} is stored`);
+    assert.equal(bytes.readUInt32LE(local), 0x04034b50, 'local file header');
+    const start = local + 30 + bytes.readUInt16LE(local + 26) + bytes.readUInt16LE(local + 28);
+    const data = bytes.subarray(start, start + size);
+    assert.equal(crc32(data), crc, `CRC-32 of ${name}`);
+    entries.set(name, data);
+    at += 46 + nameLength + extra + comment;
+  }
+  return entries;
 }

@@ -10,17 +10,20 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import {
   openBrowser, serverUrl, waitForFit, shownCurve, shownImageErrors, demoStack, tempDir, runCli,
-  maxRelativeDifference, canvasIsDrawn, screenshot,
+  maxRelativeDifference, canvasIsDrawn, screenshot, readZip,
 } from './harness.js';
 
-// The command line's report for the micrograph files with a measured lattice.
-function cliMeasuredReport(files, { group, samples, generators, frequencies }) {
-  const report = join(tempDir('cli-measured'), 'report.json');
+// The command line's report for the micrograph files with a measured lattice,
+// and the folder of its --out files.
+function cliMeasuredFit(files, { group, samples, generators, frequencies }) {
+  const dir = tempDir('cli-measured');
+  const report = join(dir, 'report.json');
+  const out = join(dir, 'out');
   runCli([
     'fit', '--group', group, '--lattice', 'detect', '--samples', String(samples), '--generators', String(generators),
-    '--band-frequencies', String(frequencies), '--report', report, ...files,
+    '--band-frequencies', String(frequencies), '--report', report, '--out', out, ...files,
   ]);
-  return JSON.parse(readFileSync(report, 'utf8'));
+  return { report: JSON.parse(readFileSync(report, 'utf8')), out };
 }
 
 async function useMicrograph(page) {
@@ -83,7 +86,7 @@ test('honeycomb micrograph: measure, survey and fit p6m on the measured lattice 
     t.diagnostic(`in-browser measured fit: ${seconds} s`);
 
     const demo = demoStack('honeycomb-micrograph');
-    const cli = cliMeasuredReport(demo.files, { group: 'p6m', samples: 10, generators: 1, frequencies: 61 });
+    const { report: cli, out: cliOut } = cliMeasuredFit(demo.files, { group: 'p6m', samples: 10, generators: 1, frequencies: 61 });
     const shown = await shownCurve(page);
     assert.deepEqual(shown.map((p) => p.generators), cli.error_curve.map((p) => p.generators));
     const curveDifference = maxRelativeDifference(shown.map((p) => p.error), cli.error_curve.map((p) => p.error));
@@ -109,6 +112,24 @@ test('honeycomb micrograph: measure, survey and fit p6m on the measured lattice 
       assert.ok(await canvasIsDrawn(page, selector), `${selector} is blank or constant`);
     }
     await screenshot(page, 'measured-03-fitted-vacancy');
+
+    // The export says which coordinates its arrays are in, and holds the residuals mapped back to the pixels.
+    await page.click('#export-open');
+    const downloading = page.waitForEvent('download');
+    await page.click('#export-download');
+    const path = join(tempDir('measured-export'), 'export.zip');
+    await (await downloading).saveAs(path);
+    const entries = readZip(readFileSync(path));
+    for (const name of ['report.json', 'lattice.json', 'generators.npy', 'residuals.npy', 'residual-pixels-003.png']) {
+      assert.ok(entries.has(name), `${name} in the zip`);
+    }
+    const lattice = JSON.parse(entries.get('lattice.json').toString('utf8'));
+    assert.match(lattice.coordinates, /on the lattice grid/);
+    assert.equal(lattice.kind, 'hexagonal');
+    const exported = JSON.parse(entries.get('report.json').toString('utf8'));
+    assert.ok(maxRelativeDifference(exported.error_curve.map((p) => p.error), cli.error_curve.map((p) => p.error)) <= 1e-9);
+    // The vacancy image's residual in pixel geometry: the same picture as the command line's.
+    assert.ok(entries.get('residual-pixels-003.png').equals(readFileSync(join(cliOut, 'residual-pixels-003.png'))), 'residual-pixels-003.png differs from the command line\'s');
     assert.deepEqual(browser.errors, []);
   } finally {
     await browser.close();
