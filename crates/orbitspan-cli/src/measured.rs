@@ -7,53 +7,25 @@ use crate::failure::{printed, CliError};
 use crate::input::read_stack;
 use crate::progress_bar::ProgressBar;
 use crate::tables;
-use orbitspan_core::lattice_detect::{self, DetectOptions, Detection, LatticeKind, LatticeVectors};
+use orbitspan_core::lattice_detect::{self, DetectOptions};
 use orbitspan_core::model::MODEL_FILE_EXTENSION;
-use orbitspan_core::plane_group::LatticeType;
 use orbitspan_core::resample::CellVectors;
-use orbitspan_core::survey::{self, candidates, CellChoice};
-use orbitspan_core::{picture, Error, Image, Progress, Stack};
+use orbitspan_core::survey::{self, CellChoice, MeasuredLattice};
+use orbitspan_core::{picture, Image, Progress, Stack};
 use std::io::Write;
 
-/// The lattice to work on: reduced basis, conventional cell and type.
-struct Measured {
-    reduced: LatticeVectors,
-    conventional: LatticeVectors,
-    kind: LatticeKind,
-    detection: Option<Detection>,
-}
-
-fn lattice_type(kind: LatticeKind) -> LatticeType {
-    match kind {
-        LatticeKind::Oblique => LatticeType::Oblique,
-        LatticeKind::Rectangular => LatticeType::Rectangular,
-        LatticeKind::CentredRectangular => LatticeType::Centred,
-        LatticeKind::Square => LatticeType::Square,
-        LatticeKind::Hexagonal => LatticeType::Hexagonal,
-    }
-}
-
-fn cell(v: &LatticeVectors) -> CellVectors {
-    [v.a1, v.a2]
-}
-
-fn measure(lattice: LatticeArg, stack: &Stack) -> Result<Measured, CliError> {
-    let options = DetectOptions::default();
+fn measure(lattice: LatticeArg, stack: &Stack) -> Result<MeasuredLattice, CliError> {
     Ok(match lattice {
-        LatticeArg::Detect => {
-            let d = lattice_detect::detect(stack, &options)?;
-            Measured { reduced: d.vectors.clone(), conventional: d.conventional.clone(), kind: d.kind, detection: Some(d) }
-        }
-        LatticeArg::Vectors([a1, a2]) => {
-            let reduced = lattice_detect::reduce(&LatticeVectors { a1, a2 });
-            let kind = lattice_detect::classify(&reduced, &options);
-            let conventional = lattice_detect::conventional_cell(&reduced, kind);
-            Measured { reduced, conventional, kind, detection: None }
-        }
+        LatticeArg::Detect => MeasuredLattice::detected(lattice_detect::detect(stack, &DetectOptions::default())?),
+        LatticeArg::Vectors([a1, a2]) => MeasuredLattice::typed(a1, a2)?,
     })
 }
 
-fn describe(m: &Measured) -> String {
+fn cell(v: &orbitspan_core::lattice_detect::LatticeVectors) -> CellVectors {
+    [v.a1, v.a2]
+}
+
+fn describe(m: &MeasuredLattice) -> String {
     let [l1, l2] = m.reduced.lengths();
     let mut text = format!(
         "lattice: {} ; a1 = ({:.4}, {:.4}) px, a2 = ({:.4}, {:.4}) px ; lengths {:.4}, {:.4} px ; angle {:.3} degrees",
@@ -88,7 +60,7 @@ pub fn survey(args: &SurveyArgs, out: &mut dyn Write) -> Result<(), CliError> {
     let m = measure(args.lattice, &stack)?;
     let rows = survey::survey(
         &stack,
-        lattice_type(m.kind),
+        m.kind.lattice_type(),
         cell(&m.reduced),
         cell(&m.conventional),
         args.samples,
@@ -134,19 +106,7 @@ pub fn survey(args: &SurveyArgs, out: &mut dyn Write) -> Result<(), CliError> {
 /// `orbitspan fit --lattice ...`.
 pub fn fit(args: &FitArgs, lattice: LatticeArg, stack: &Stack, progress: &mut ProgressBar, out: &mut dyn Write) -> Result<(), CliError> {
     let m = measure(lattice, stack)?;
-    let allowed = candidates(lattice_type(m.kind));
-    let Some((_, choice)) = allowed.iter().find(|(g, _)| *g == args.group) else {
-        let names: Vec<String> = allowed.iter().map(|(g, _)| g.name()).collect();
-        return Err(Error::input(format!(
-            "plane group {} needs a {:?} lattice; the lattice is {} (groups it allows: {})",
-            args.group.name(),
-            args.group.symbol.lattice_type(),
-            m.kind,
-            names.join(", ")
-        ))
-        .into());
-    };
-    let cell_vectors = if *choice == CellChoice::Conventional { cell(&m.conventional) } else { cell(&m.reduced) };
+    let cell_vectors = m.cell_for(&args.group)?;
     let measured =
         survey::fit_measured(stack, cell_vectors, args.group, args.samples, args.generators, args.band, None, progress)?;
     progress.finish();

@@ -120,6 +120,18 @@ pub enum LatticeKind {
 }
 
 impl LatticeKind {
+    /// The same lattice system as the plane groups name it.
+    pub fn lattice_type(self) -> crate::plane_group::LatticeType {
+        use crate::plane_group::LatticeType;
+        match self {
+            LatticeKind::Oblique => LatticeType::Oblique,
+            LatticeKind::Rectangular => LatticeType::Rectangular,
+            LatticeKind::CentredRectangular => LatticeType::Centred,
+            LatticeKind::Square => LatticeType::Square,
+            LatticeKind::Hexagonal => LatticeType::Hexagonal,
+        }
+    }
+
     /// Plain name, e.g. "centred rectangular".
     pub fn name(self) -> &'static str {
         match self {

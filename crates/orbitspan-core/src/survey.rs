@@ -30,6 +30,7 @@
 use crate::error::{Error, Result};
 use crate::fiber::Symmetry;
 use crate::fit::{fit, Fit};
+use crate::lattice_detect::{self, DetectOptions, Detection, LatticeKind, LatticeVectors};
 use crate::plane_group::{GroupSymbol, LatticeType, PlaneGroup, Setting};
 use crate::progress::Progress;
 use crate::resample::{CellVectors, LatticeGrid};
@@ -69,6 +70,71 @@ pub fn candidates(kind: LatticeType) -> Vec<(PlaneGroup, CellChoice)> {
         ],
         LatticeType::Square => rect.into_iter().chain([std(P4), std(P4m), std(P4g)]).collect(),
         LatticeType::Hexagonal => vec![std(P1), std(P2), std(P3), std(P3m1), std(P31m), std(P6), std(P6m)],
+    }
+}
+
+/// A lattice to work on: the reduced basis, the conventional cell, the
+/// type, and the detection when it was measured. Front ends turn the user's
+/// choice (detect, or two typed vectors) into one of these, and ask it for
+/// the cell a plane group is fitted on.
+#[derive(Clone, Debug)]
+pub struct MeasuredLattice {
+    pub reduced: LatticeVectors,
+    pub conventional: LatticeVectors,
+    pub kind: LatticeKind,
+    pub detection: Option<Detection>,
+}
+
+impl MeasuredLattice {
+    /// The lattice of a detection ([`lattice_detect::detect`]).
+    pub fn detected(d: Detection) -> MeasuredLattice {
+        MeasuredLattice { reduced: d.vectors.clone(), conventional: d.conventional.clone(), kind: d.kind, detection: Some(d) }
+    }
+
+    /// The lattice of two typed vectors in pixels: reduced, classified with
+    /// the default tolerances, with its conventional cell. Vectors that span
+    /// no lattice (zero, parallel, not finite) are a bad-input error.
+    pub fn typed(a1: [f64; 2], a2: [f64; 2]) -> Result<MeasuredLattice> {
+        let given = LatticeVectors { a1, a2 };
+        let finite = a1.iter().chain(&a2).all(|v| v.is_finite());
+        if !finite || given.area() < 1e-9 * (1.0 + given.lengths()[0] * given.lengths()[1]) {
+            return Err(Error::input(format!(
+                "the lattice vectors a1 = ({}, {}) and a2 = ({}, {}) px span no lattice: give two non-parallel vectors of non-zero length",
+                a1[0], a1[1], a2[0], a2[1]
+            )));
+        }
+        let options = DetectOptions::default();
+        let reduced = lattice_detect::reduce(&given);
+        let kind = lattice_detect::classify(&reduced, &options);
+        let conventional = lattice_detect::conventional_cell(&reduced, kind);
+        Ok(MeasuredLattice { reduced, conventional, kind, detection: None })
+    }
+
+    /// The cell `group` is fitted on: the reduced basis, or the conventional
+    /// cell for cm and cmm; a bad-input error naming the groups the lattice
+    /// allows when it does not allow `group`.
+    pub fn cell_for(&self, group: &PlaneGroup) -> Result<CellVectors> {
+        let allowed = candidates(self.kind.lattice_type());
+        match allowed.iter().find(|(g, _)| g == group) {
+            Some((_, CellChoice::Conventional)) => Ok([self.conventional.a1, self.conventional.a2]),
+            Some((_, CellChoice::Reduced)) => Ok([self.reduced.a1, self.reduced.a2]),
+            None => {
+                let names: Vec<String> = allowed.iter().map(|(g, _)| g.name()).collect();
+                let needs = match group.symbol.lattice_type() {
+                    LatticeType::Oblique => "oblique",
+                    LatticeType::Rectangular => "rectangular",
+                    LatticeType::Centred => "centred rectangular",
+                    LatticeType::Square => "square",
+                    LatticeType::Hexagonal => "hexagonal",
+                };
+                Err(Error::input(format!(
+                    "{} needs a {needs} lattice; the lattice is {} (it allows {})",
+                    group.name(),
+                    self.kind,
+                    names.join(", ")
+                )))
+            }
+        }
     }
 }
 

@@ -1,7 +1,7 @@
 //! [`Session`]: the state the page's worker keeps between messages.
 
 use crate::js_values::{error, from_js, picture, picture_with_values, set, to_js};
-use crate::measured_lattice::{LatticeFit, Measured};
+use crate::measured_lattice::{measured_of, LatticeFit, LatticeReport, Measured};
 use crate::page_settings::{LatticeChoice, PageSettings};
 use js_sys::{Array, Function, Object, Uint8Array};
 use orbitspan_core::image_io::{self, DecodeLimits};
@@ -251,7 +251,7 @@ impl Session {
             .into_iter()
             .map(|group| {
                 let reason = match measured.cell_for(&group) {
-                    Err(why) => Some(why),
+                    Err(why) => Some(why.to_string()),
                     Ok(cell) => survey::grid_for(h, w, cell, &group, samples).err().map(|e| e.to_string()),
                 };
                 group_entry(group, reason)
@@ -264,7 +264,7 @@ impl Session {
     fn measure(&mut self, choice: LatticeChoice) -> Result<Measured, Error> {
         let stack = Stack::new(self.images.clone())?;
         let cached = &mut self.detection;
-        Measured::of(choice, &stack, |stack| {
+        measured_of(choice, &stack, |stack| {
             if let Some(d) = cached {
                 return Ok(d.clone());
             }
@@ -314,7 +314,7 @@ impl Session {
         let stack = self.stack()?;
         let rows = survey::survey(
             &stack,
-            measured.lattice_type(),
+            measured.kind.lattice_type(),
             [measured.reduced.a1, measured.reduced.a2],
             [measured.conventional.a1, measured.conventional.a2],
             options.samples,
@@ -346,7 +346,7 @@ impl Session {
             None => (fit::fit(&stack, &settings, &mut progress_callback(progress)).map_err(error)?, None),
             Some(choice) => {
                 let measured = self.measure(choice).map_err(error)?;
-                let cell = measured.cell_for(&settings.group).map_err(|why| error(Error::input(why)))?;
+                let cell = measured.cell_for(&settings.group).map_err(error)?;
                 let m = survey::fit_measured(
                     &stack,
                     cell,
