@@ -20,7 +20,7 @@ use crate::frame;
 use crate::isotypic::{isotypic_blocks, Monomial};
 use crate::model::Model;
 use crate::progress::Progress;
-use crate::report::{BandReport, CurvePoint, GeneratorInfo, Report};
+use crate::report::{BandReport, CurvePoint, GeneratorInfo, ImageError, Report};
 use crate::settings::FitSettings;
 use crate::spectrum::fft2;
 use crate::stack::{Image, Stack};
@@ -56,6 +56,9 @@ pub(crate) struct OrbitSolution {
     pub layer_energy: Vec<f64>,
     pub tail: f64,
     pub layers: Vec<DMatrix<Complex64>>,
+    /// Per image, the energy its fibers on this orbit keep outside all
+    /// `lmax` layers (spectrum units: divide by `|T|`).
+    pub image_discarded: Vec<f64>,
 }
 
 /// Checks settings against an image size without fitting: the same errors
@@ -88,8 +91,9 @@ pub fn validate(height: usize, width: usize, settings: &FitSettings) -> Result<S
 }
 
 /// Fits the stack: see the module documentation. Progress stages:
-/// "transforming images", "fitting frequencies", "building generators",
-/// "computing residuals".
+/// "transforming images", "fitting frequencies", "building generators".
+/// Residual images are not made here: [`Model::project`] makes one when it
+/// is shown or exported.
 pub fn fit(stack: &Stack, settings: &FitSettings, progress: &mut dyn Progress) -> Result<Fit> {
     fit_with_path(stack, settings, FiberPath::Auto, progress)
 }
@@ -109,12 +113,12 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
     }
 
     // Band limit: E(F,S) = E(P_Ω F, S) + ||F − P_Ω F||².
-    let mut outside = 0.0;
+    let mut outside_per_image = vec![0.0; stack.len()];
     let band: Option<Band> = match &settings.band {
         Some(spec) => {
             let b = band::select(&sym, spec, &spectra, settings.group.symbol.is_hexagonal())?;
-            for s in spectra.iter_mut() {
-                outside += b.restrict(s);
+            for (s, out) in spectra.iter_mut().zip(outside_per_image.iter_mut()) {
+                *out = b.restrict(s);
             }
             Some(b)
         }
@@ -139,6 +143,7 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
     drop(spectra);
     let solutions: Vec<OrbitSolution> = slots.into_iter().map(|s| s.expect("every orbit solved")).collect();
 
+    let outside: f64 = outside_per_image.iter().sum();
     let total_energy = stack.energy();
     let mut curve = Vec::with_capacity(lmax);
     for l in 1..=lmax {
@@ -156,7 +161,19 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
         .map(|g| from_group_frame(&g.image, settings.origin))
         .collect();
     let model = Model::new(settings.clone(), h, w, generator_images)?;
-    let images = model.evaluate(stack, &mut |stage: &str, f: f64| progress.update(stage, f))?;
+    // Per-image errors ||f_i − P_V f_i||² from the orbit solutions (the
+    // model's frame projection, `Model::evaluate`, is the slow reference).
+    let images: Vec<ImageError> = stack
+        .labels()
+        .iter()
+        .zip(stack.images())
+        .enumerate()
+        .map(|(i, (label, img))| {
+            let energy = img.energy();
+            let error = outside_per_image[i] + solutions.iter().map(|s| s.image_discarded[i]).sum::<f64>() / pixels;
+            ImageError { file: label.clone(), energy, error, relative_error: ratio(error, energy) }
+        })
+        .collect();
 
     let mut infos = Vec::with_capacity(lmax);
     for l in 0..lmax {
@@ -238,6 +255,13 @@ fn gram_unitary(sym: &Symmetry, xi0: [usize; 2], h: usize, images: usize) -> Mon
 }
 
 /// Decomposes one orbit (see the module documentation).
+///
+/// Covariance path: with `v_g` the fiber at `ξ0` of `π(γ_g) f` and
+/// `U_h v_g = c · v_{hg}` (`|c| = 1`, see [`gram_unitary`]), the sum over `G`
+/// is a sum over the orbit's points (one element `p` per right coset `Hp`):
+/// `Σ_g v_g v_gᴴ = Σ_{h∈H} U_h (Σ_p v_p v_pᴴ) U_hᴴ`, so only `r` of the `|G|`
+/// gathers per image are multiplied out and the stabiliser is applied to the
+/// `d x d` result.
 pub(crate) fn solve_orbit(
     sym: &Symmetry,
     orbit: &Orbit,
@@ -255,8 +279,9 @@ pub(crate) fn solve_orbit(
         FiberPath::Covariance => false,
         FiberPath::Gram => true,
     };
-    let gathers: Vec<Gather> = (0..gcount).map(|g| sym.gather(orbit.rep, g)).collect();
+    let point_gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
     let (x, ops, y) = if use_gram {
+        let gathers: Vec<Gather> = (0..gcount).map(|g| sym.gather(orbit.rep, g)).collect();
         let mut y = DMatrix::<Complex64>::zeros(d, gcount * m);
         for (g, gather) in gathers.iter().enumerate() {
             for (i, s) in spectra.iter().enumerate() {
@@ -271,7 +296,8 @@ pub(crate) fn solve_orbit(
             .iter()
             .map(|&h| sym.fiber_unitary(orbit.rep, h))
             .collect::<Result<Vec<_>>>()?;
-        (pooled_covariance(&gathers, spectra) * Complex64::new(1.0 / hsize, 0.0), ops, None)
+        let c0 = pooled_covariance(&point_gathers, spectra);
+        (symmetrised(&c0, &ops) * Complex64::new(1.0 / hsize, 0.0), ops, None)
     };
     let n = x.nrows();
     let blocks = isotypic_blocks(n, &ops)?;
@@ -280,6 +306,9 @@ pub(crate) fn solve_orbit(
     let mut layer_energy = vec![0.0; lmax];
     let mut tail = 0.0;
     let mut layer_vectors: Vec<Vec<DVector<Complex64>>> = vec![Vec::new(); lmax];
+    // Per block: its eigenvectors, and which were kept (by layer) or not.
+    let mut decompositions = Vec::with_capacity(blocks.len());
+    let mut kept_count = 0;
     for b in &blocks {
         let xw = adjoint_product(&b.basis, &product(&x, &b.basis));
         let eig = nalgebra::SymmetricEigen::new(xw);
@@ -294,8 +323,9 @@ pub(crate) fn solve_orbit(
                 None => tail += lambda,
             }
         }
-        // Keep whole copies (s eigenvectors) with non-negligible energy.
-        let mut kept: Vec<(usize, usize)> = Vec::new();
+        // Keep whole copies (s eigenvectors) with non-negligible energy,
+        // grouped by layer: (layer, eigenvector indices).
+        let mut groups: Vec<(usize, Vec<usize>)> = Vec::new();
         for (copy, chunk) in order.chunks(s).enumerate() {
             let layer = copy / (r * s);
             if layer >= lmax {
@@ -305,47 +335,147 @@ pub(crate) fn solve_orbit(
             if !(mean > tol) {
                 continue;
             }
-            kept.extend(chunk.iter().map(|&e| (layer, e)));
+            match groups.last_mut() {
+                Some((l, es)) if *l == layer => es.extend_from_slice(chunk),
+                _ => groups.push((layer, chunk.to_vec())),
+            }
         }
-        // One vector at a time (not one product of all kept vectors): each
-        // vector's round-off must not depend on how many are kept, so the
-        // generators for L are bit-identical to the first L for L + 1.
-        for &(layer, e) in &kept {
-            let v = &b.basis * eig.eigenvectors.column(e);
+        kept_count += groups.iter().map(|g| g.1.len()).sum::<usize>();
+        decompositions.push((eig, groups));
+    }
+    for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
+        // One product per (block, layer): its shape does not depend on how
+        // many layers are kept, so the generators for L are bit-identical to
+        // the first L for L + 1.
+        for (layer, es) in groups {
+            let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), es.len(), |row, c| eig.eigenvectors[(row, es[c])]);
+            let v = product(&b.basis, &coeffs);
             let u = match &y {
-                Some(y) => y * v,
+                Some(y) => product(y, &v),
                 None => v,
             };
-            let norm = u.norm();
-            if norm > 0.0 {
-                layer_vectors[layer].push(u / Complex64::new(norm, 0.0));
-            }
-        }
-    }
-    // Re-orthonormalise in layer order (modified Gram–Schmidt, twice): the
-    // Gram path's `Y v / ||Y v||` loses orthogonality for small eigenvalues.
-    // Spans of every prefix of layers are kept, so the layers stay nested.
-    let mut done: Vec<DVector<Complex64>> = Vec::new();
-    let mut layers = Vec::with_capacity(lmax);
-    for cols in layer_vectors {
-        let start = done.len();
-        for mut v in cols {
-            for _ in 0..2 {
-                for q in &done {
-                    let c = q.dotc(&v);
-                    v -= q * c;
+            for col in u.column_iter() {
+                let norm = col.norm();
+                if norm > 0.0 {
+                    layer_vectors[*layer].push(col / Complex64::new(norm, 0.0));
                 }
             }
-            let norm = v.norm();
-            if norm > 0.5 {
-                done.push(v / Complex64::new(norm, 0.0));
-            } else {
-                return Err(Error::Internal(format!("fiber {:?}: kept vectors are not independent", orbit.rep)));
+        }
+    }
+    let layers = orthonormal_layers(layer_vectors, d, orbit.rep)?;
+    // Per-image discarded energy with all lmax layers: through the
+    // complement (the eigenvectors not kept) when it is the smaller space
+    // and known (covariance path), else energy minus the captured part.
+    let discard = if y.is_none() && d - kept_count < kept_count {
+        let mut columns = Vec::with_capacity(d - kept_count);
+        for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
+            let kept: Vec<usize> = groups.iter().flat_map(|g| g.1.iter().copied()).collect();
+            let rest: Vec<usize> = (0..eig.eigenvalues.len()).filter(|e| !kept.contains(e)).collect();
+            if rest.is_empty() {
+                continue;
+            }
+            let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), rest.len(), |row, c| eig.eigenvectors[(row, rest[c])]);
+            columns.extend(product(&b.basis, &coeffs).column_iter().map(|c| c.into_owned()));
+        }
+        Discard::Complement(if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) })
+    } else {
+        let columns: Vec<DVector<Complex64>> =
+            layers.iter().flat_map(|q| q.column_iter().map(|c| c.into_owned())).collect();
+        Discard::Captured(if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) })
+    };
+    let image_discarded = per_image_discarded(&point_gathers, spectra, &discard);
+    Ok(OrbitSolution { layer_energy, tail, layers, image_discarded })
+}
+
+/// `Σ_h U_h C U_hᴴ` for monomial `U_h`:
+/// `(U C Uᴴ)[a, b] = phase[a] C[perm[a], perm[b]] conj(phase[b])`.
+fn symmetrised(c: &DMatrix<Complex64>, ops: &[Monomial]) -> DMatrix<Complex64> {
+    let n = c.nrows();
+    let mut out = DMatrix::<Complex64>::zeros(n, n);
+    for op in ops {
+        for b in 0..n {
+            let (pb, cb) = (op.perm[b], op.phase[b].conj());
+            for a in 0..n {
+                out[(a, b)] += op.phase[a] * c[(op.perm[a], pb)] * cb;
             }
         }
-        layers.push(if done.len() == start { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&done[start..]) });
     }
-    Ok(OrbitSolution { layer_energy, tail, layers })
+    out
+}
+
+/// Orthonormalises the kept vectors layer by layer: against all earlier
+/// layers by block classical Gram–Schmidt run twice (matrix products), then
+/// within the layer by modified Gram–Schmidt run twice. The Gram path's
+/// `Y v / ||Y v||` loses orthogonality for small eigenvalues. Layer `l`
+/// depends only on layers `< l`, so the layers stay nested.
+fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep: [usize; 2]) -> Result<Vec<DMatrix<Complex64>>> {
+    let mut layers: Vec<DMatrix<Complex64>> = Vec::with_capacity(layer_vectors.len());
+    for cols in layer_vectors {
+        if cols.is_empty() {
+            layers.push(DMatrix::zeros(d, 0));
+            continue;
+        }
+        let mut v = DMatrix::from_columns(&cols);
+        for _ in 0..2 {
+            for p in layers.iter().filter(|p| p.ncols() > 0) {
+                let c = adjoint_product(p, &v);
+                v -= product(p, &c);
+            }
+        }
+        let mut q: Vec<DVector<Complex64>> = Vec::with_capacity(v.ncols());
+        for j in 0..v.ncols() {
+            let mut x = v.column(j).into_owned();
+            for _ in 0..2 {
+                for e in &q {
+                    let c = e.dotc(&x);
+                    x -= e * c;
+                }
+            }
+            let norm = x.norm();
+            if norm > 0.5 {
+                q.push(x / Complex64::new(norm, 0.0));
+            } else {
+                return Err(Error::Internal(format!("fiber {rep:?}: kept vectors are not independent")));
+            }
+        }
+        layers.push(DMatrix::from_columns(&q));
+    }
+    Ok(layers)
+}
+
+/// How [`per_image_discarded`] measures what the layers leave out.
+enum Discard {
+    /// An orthonormal basis of the kept space: discarded = `||v||² − ||Qᴴv||²`.
+    Captured(DMatrix<Complex64>),
+    /// An orthonormal basis of its complement: discarded = `||Rᴴv||²`.
+    Complement(DMatrix<Complex64>),
+}
+
+/// Per image `i`, `Σ_p ||v_{p,i} − P v_{p,i}||²` over the orbit's points `p`
+/// (each fiber of the orbit once), in spectrum units (divide by `|T|`).
+fn per_image_discarded(point_gathers: &[Gather], spectra: &[Vec<Complex64>], discard: &Discard) -> Vec<f64> {
+    let m = spectra.len();
+    let d = point_gathers.first().map_or(0, |g| g.index.len());
+    let mut out = vec![0.0; m];
+    let pairs: Vec<(usize, &Gather)> = point_gathers.iter().flat_map(|g| (0..m).map(move |i| (i, g))).collect();
+    for chunk in pairs.chunks(POOL_BLOCK) {
+        let mut x = DMatrix::<Complex64>::zeros(d, chunk.len());
+        for (c, &(i, gather)) in chunk.iter().enumerate() {
+            gather.apply_into(&spectra[i], x.column_mut(c).as_mut_slice());
+        }
+        let basis = match discard {
+            Discard::Captured(q) | Discard::Complement(q) => q,
+        };
+        let projected = if basis.ncols() > 0 { Some(adjoint_product(basis, &x)) } else { None };
+        for (c, &(i, _)) in chunk.iter().enumerate() {
+            let inside = projected.as_ref().map_or(0.0, |p| p.column(c).norm_squared());
+            out[i] += match discard {
+                Discard::Captured(_) => (x.column(c).norm_squared() - inside).max(0.0),
+                Discard::Complement(_) => inside,
+            };
+        }
+    }
+    out
 }
 
 /// Columns of pooled fiber vectors per block in [`pooled_covariance`]: bounds
@@ -354,7 +484,7 @@ const POOL_BLOCK: usize = 512;
 
 /// `Σ_{g,i} v_{g,i} v_{g,i}ᴴ` for the fiber vectors `v_{g,i} = gather_g(f̂_i)`,
 /// accumulated over blocks of [`POOL_BLOCK`] vectors without forming the
-/// whole `d x m|G|` matrix `Y`: with `Y = A + iB` (real and imaginary parts),
+/// whole `d x (gathers · images)` matrix `Y`: with `Y = A + iB` (real and imaginary parts),
 /// `Y Yᴴ = (A Aᵀ + B Bᵀ) + i (B Aᵀ − (B Aᵀ)ᵀ)`, three real matrix products.
 pub(crate) fn pooled_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>]) -> DMatrix<Complex64> {
     let d = gathers.first().map_or(0, |g| g.index.len());

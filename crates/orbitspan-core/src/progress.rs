@@ -5,7 +5,7 @@
 /// [`crate::Error::Cancelled`] at the next check.
 pub trait Progress {
     /// `stage` is a short plain phrase ("transforming images", "fitting
-    /// frequencies", "building generators", "computing residuals");
+    /// frequencies", "building generators"; applying a model: "computing residuals");
     /// `fraction` runs from 0 to 1 within the stage.
     fn update(&mut self, stage: &str, fraction: f64) -> bool;
 }

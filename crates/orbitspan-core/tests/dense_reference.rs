@@ -29,12 +29,13 @@ impl Rng {
     }
 }
 
-/// Error of projecting the stack onto the span of `vectors` (columns).
-fn span_error(vectors: &DMatrix<f64>, images: &[Image]) -> (f64, Vec<f64>) {
+/// Per-image errors of projecting the stack onto the span of `vectors`
+/// (columns), and the eigenvalues of `V Vᵀ`.
+fn span_error(vectors: &DMatrix<f64>, images: &[Image]) -> (Vec<f64>, Vec<f64>) {
     let s = vectors * vectors.transpose();
     let eig = s.clone().symmetric_eigen();
     let top = eig.eigenvalues.iter().fold(0.0f64, |m, v| m.max(*v));
-    let mut error = 0.0;
+    let mut errors = Vec::with_capacity(images.len());
     for img in images {
         let f = DVector::from_column_slice(&img.pixels);
         let mut captured = 0.0;
@@ -44,9 +45,9 @@ fn span_error(vectors: &DMatrix<f64>, images: &[Image]) -> (f64, Vec<f64>) {
                 captured += c * c;
             }
         }
-        error += f.norm_squared() - captured;
+        errors.push(f.norm_squared() - captured);
     }
-    (error, eig.eigenvalues.iter().copied().collect())
+    (errors, eig.eigenvalues.iter().copied().collect())
 }
 
 fn orbit_vectors(perms: &[Vec<usize>], gens: &[Image]) -> DMatrix<f64> {
@@ -143,7 +144,8 @@ fn fiber_fit_matches_dense_reference_for_all_17_groups() {
             // The L generators really achieve it: dense projection onto their Γ-orbit span.
             let gens = fit.model.generators().to_vec();
             let vectors = orbit_vectors(&perms, &gens);
-            let (err, frame_eigs) = span_error(&vectors, &images);
+            let (per_image, frame_eigs) = span_error(&vectors, &images);
+            let err: f64 = per_image.iter().sum();
             assert!(
                 (err - curve[l - 1]).abs() <= 1e-9 * curve[l - 1].max(1e-3 * total),
                 "{:?} L={l}: orbit span error {err} vs reported {}",
@@ -160,9 +162,15 @@ fn fiber_fit_matches_dense_reference_for_all_17_groups() {
                 assert!((lhs - info.layer_dimension as f64).abs() < 1e-9 * lhs.max(1.0), "{:?}: {lhs} vs {}", case.symbol, info.layer_dimension);
                 assert!(info.imaginary_part < 1e-9, "{:?}: imaginary part {}", case.symbol, info.imaginary_part);
             }
-            // Σ residual energies = reported error.
+            // Σ residual energies = reported error; each image's error equals
+            // the dense projection's and the model's frame projection's.
             let sum: f64 = fit.report.images.iter().map(|e| e.error).sum();
             assert!((sum - curve[l - 1]).abs() <= 1e-9 * total, "{:?}: residuals {sum} vs {}", case.symbol, curve[l - 1]);
+            let applied = fit.model.evaluate(&stack, &mut Silent).unwrap();
+            for ((e, dense_e), a) in fit.report.images.iter().zip(&per_image).zip(&applied) {
+                assert!((e.error - dense_e).abs() <= 1e-9 * total, "{:?} L={l}: image error {} vs dense {dense_e}", case.symbol, e.error);
+                assert!((e.error - a.error).abs() <= 1e-9 * total, "{:?} L={l}: image error {} vs model {}", case.symbol, e.error, a.error);
+            }
             // Nested: generators for L are bit-identical to the first L for L+1.
             if let Some(prev) = &previous_gens {
                 for (a, b) in prev.iter().zip(&gens) {
@@ -223,7 +231,7 @@ fn no_random_generators_do_better() {
             let best = fit.report.error_curve[l - 1].error;
             for _ in 0..150 {
                 let gens: Vec<Image> = (0..l).map(|_| rng.image(n)).collect();
-                let (err, _) = span_error(&orbit_vectors(&perms, &gens), &images);
+                let err: f64 = span_error(&orbit_vectors(&perms, &gens), &images).0.iter().sum();
                 assert!(err >= best - 1e-9 * best, "{symbol:?} L={l}: random {err} beat optimum {best}");
             }
         }

@@ -7,19 +7,28 @@
 
 use orbitspan_core::image_io::{decode, DecodeLimits};
 use std::alloc::{GlobalAlloc, Layout, System};
-use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::cell::Cell;
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Mutex;
 
 struct Counting;
 
-static RECORDING: AtomicBool = AtomicBool::new(false);
+thread_local! {
+    /// Only the measuring thread records: other tests of this binary run on
+    /// other threads at the same time and must not enter the record.
+    static RECORDING: Cell<bool> = const { Cell::new(false) };
+}
 static LARGEST: AtomicUsize = AtomicUsize::new(0);
-/// Tests in this file run one at a time so the record is their own.
+/// Tests that measure run one at a time so the record is their own.
 static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
+
+fn recording() -> bool {
+    RECORDING.try_with(Cell::get).unwrap_or(false)
+}
 
 unsafe impl GlobalAlloc for Counting {
     unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
-        if RECORDING.load(Ordering::Relaxed) {
+        if recording() {
             LARGEST.fetch_max(layout.size(), Ordering::Relaxed);
         }
         System.alloc(layout)
@@ -28,7 +37,7 @@ unsafe impl GlobalAlloc for Counting {
         System.dealloc(ptr, layout)
     }
     unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
-        if RECORDING.load(Ordering::Relaxed) {
+        if recording() {
             LARGEST.fetch_max(new_size, Ordering::Relaxed);
         }
         System.realloc(ptr, layout, new_size)
@@ -42,9 +51,9 @@ static ALLOCATOR: Counting = Counting;
 fn largest_allocation<T>(f: impl FnOnce() -> T) -> (T, usize) {
     let _guard = ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner());
     LARGEST.store(0, Ordering::SeqCst);
-    RECORDING.store(true, Ordering::SeqCst);
+    RECORDING.with(|r| r.set(true));
     let out = f();
-    RECORDING.store(false, Ordering::SeqCst);
+    RECORDING.with(|r| r.set(false));
     (out, LARGEST.load(Ordering::SeqCst))
 }
 
