@@ -37,6 +37,25 @@ impl Gather {
             *o = p * spectrum[i];
         }
     }
+    /// The same gather reading from a compact buffer that holds only some
+    /// fibers: fiber `f` at slot `slot[f]`, its `d` values in the order of
+    /// [`Lattice::dual`] (`ξ = rep(f) + η_k` at `slot[f] · d + k`). Every
+    /// fiber this gather reads must have a slot.
+    pub fn localised(&self, lattice: &Lattice, slot: &[usize]) -> Gather {
+        let n2 = lattice.torus()[1];
+        let d = lattice.fiber_len();
+        let index = self
+            .index
+            .iter()
+            .map(|&i| {
+                let xi = [i / n2, i % n2];
+                let f = lattice.fiber_of(xi);
+                let k = lattice.dual_index(lattice.sub(xi, lattice.fiber_rep(f))).expect("a frequency lies in its own fiber");
+                slot[f] * d + k
+            })
+            .collect();
+        Gather { index, phase: self.phase.clone() }
+    }
     /// The inverse: writes `f̂[index_k] = conj(phase_k) · v_k`.
     pub fn scatter(&self, v: &[Complex64], spectrum: &mut [Complex64]) {
         for ((&i, &p), &x) in self.index.iter().zip(&self.phase).zip(v) {
@@ -164,8 +183,12 @@ impl Symmetry {
         for &eta in &self.dual {
             let zeta = self.lattice.add(xi, eta);
             index.push(self.lattice.linear(self.lattice.dual_action(&o.g, zeta)));
-            let turns = self.lattice.turns(zeta, o.t);
-            phase.push(Complex64::from_polar(1.0, -2.0 * std::f64::consts::PI * turns));
+            phase.push(if o.t == [0, 0] {
+                Complex64::new(1.0, 0.0)
+            } else {
+                let turns = self.lattice.turns(zeta, o.t);
+                Complex64::from_polar(1.0, -2.0 * std::f64::consts::PI * turns)
+            });
         }
         Gather { index, phase }
     }

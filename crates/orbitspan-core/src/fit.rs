@@ -343,6 +343,7 @@ pub(crate) fn solve_orbit(
         kept_count += groups.iter().map(|g| g.1.len()).sum::<usize>();
         decompositions.push((eig, groups));
     }
+    let y_parts = y.as_ref().map(split);
     for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
         // One product per (block, layer): its shape does not depend on how
         // many layers are kept, so the generators for L are bit-identical to
@@ -350,8 +351,8 @@ pub(crate) fn solve_orbit(
         for (layer, es) in groups {
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), es.len(), |row, c| eig.eigenvectors[(row, es[c])]);
             let v = product(&b.basis, &coeffs);
-            let u = match &y {
-                Some(y) => product(y, &v),
+            let u = match &y_parts {
+                Some((ya, yb)) => product_parts(ya, yb, &v),
                 None => v,
             };
             for col in u.column_iter() {
@@ -404,22 +405,26 @@ fn symmetrised(c: &DMatrix<Complex64>, ops: &[Monomial]) -> DMatrix<Complex64> {
 }
 
 /// Orthonormalises the kept vectors layer by layer: against all earlier
-/// layers by block classical Gram–Schmidt run twice (matrix products), then
+/// layers together by block classical Gram–Schmidt run twice (matrix
+/// products; the earlier layers are the same for every `lmax`), then
 /// within the layer by modified Gram–Schmidt run twice. The Gram path's
 /// `Y v / ||Y v||` loses orthogonality for small eigenvalues. Layer `l`
 /// depends only on layers `< l`, so the layers stay nested.
 fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep: [usize; 2]) -> Result<Vec<DMatrix<Complex64>>> {
     let mut layers: Vec<DMatrix<Complex64>> = Vec::with_capacity(layer_vectors.len());
+    // All earlier layers side by side, as real and imaginary parts.
+    let mut earlier: Vec<DVector<Complex64>> = Vec::new();
+    let mut earlier_parts: Option<(DMatrix<f64>, DMatrix<f64>)> = None;
     for cols in layer_vectors {
         if cols.is_empty() {
             layers.push(DMatrix::zeros(d, 0));
             continue;
         }
         let mut v = DMatrix::from_columns(&cols);
-        for _ in 0..2 {
-            for p in layers.iter().filter(|p| p.ncols() > 0) {
-                let c = adjoint_product(p, &v);
-                v -= product(p, &c);
+        if let Some((pa, pb)) = &earlier_parts {
+            for _ in 0..2 {
+                let c = adjoint_product_parts(pa, pb, &v);
+                v -= product_parts(pa, pb, &c);
             }
         }
         let mut q: Vec<DVector<Complex64>> = Vec::with_capacity(v.ncols());
@@ -438,6 +443,8 @@ fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep
                 return Err(Error::Internal(format!("fiber {rep:?}: kept vectors are not independent")));
             }
         }
+        earlier.extend(q.iter().cloned());
+        earlier_parts = Some(split(&DMatrix::from_columns(&earlier)));
         layers.push(DMatrix::from_columns(&q));
     }
     Ok(layers)
@@ -458,15 +465,16 @@ fn per_image_discarded(point_gathers: &[Gather], spectra: &[Vec<Complex64>], dis
     let d = point_gathers.first().map_or(0, |g| g.index.len());
     let mut out = vec![0.0; m];
     let pairs: Vec<(usize, &Gather)> = point_gathers.iter().flat_map(|g| (0..m).map(move |i| (i, g))).collect();
+    let basis = match discard {
+        Discard::Captured(q) | Discard::Complement(q) => q,
+    };
+    let basis_parts = (basis.ncols() > 0).then(|| split(basis));
     for chunk in pairs.chunks(POOL_BLOCK) {
         let mut x = DMatrix::<Complex64>::zeros(d, chunk.len());
         for (c, &(i, gather)) in chunk.iter().enumerate() {
             gather.apply_into(&spectra[i], x.column_mut(c).as_mut_slice());
         }
-        let basis = match discard {
-            Discard::Captured(q) | Discard::Complement(q) => q,
-        };
-        let projected = if basis.ncols() > 0 { Some(adjoint_product(basis, &x)) } else { None };
+        let projected = basis_parts.as_ref().map(|(a, b)| adjoint_product_parts(a, b, &x));
         for (c, &(i, _)) in chunk.iter().enumerate() {
             let inside = projected.as_ref().map_or(0.0, |p| p.column(c).norm_squared());
             out[i] += match discard {
@@ -534,6 +542,27 @@ pub(crate) fn product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix
     re.gemm(-1.0, &b, &d, 1.0);
     let mut im = &a * &d;
     im.gemm(1.0, &b, &c, 1.0);
+    re.zip_map(&im, Complex64::new)
+}
+
+/// [`product`] with the left factor already split into `(A, B)`.
+pub(crate) fn product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+    let (c, d) = split(y);
+    let mut re = a * &c;
+    re.gemm(-1.0, b, &d, 1.0);
+    let mut im = a * &d;
+    im.gemm(1.0, b, &c, 1.0);
+    re.zip_map(&im, Complex64::new)
+}
+
+/// [`adjoint_product`] with the left factor already split into `(A, B)`.
+pub(crate) fn adjoint_product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+    let (c, d) = split(y);
+    let (at, bt) = (a.transpose(), b.transpose());
+    let mut re = &at * &c;
+    re.gemm(1.0, &bt, &d, 1.0);
+    let mut im = &at * &d;
+    im.gemm(-1.0, &bt, &c, 1.0);
     re.zip_map(&im, Complex64::new)
 }
 

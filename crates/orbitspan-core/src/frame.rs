@@ -98,25 +98,38 @@ pub(crate) fn parseval_generators(
         }
     }
     let conjugate: Vec<usize> = orbits.iter().map(|o| orbit_of_fiber[l.fiber_of(l.neg(o.rep))]).collect();
-    // Orbit by orbit (the gathers of an orbit are made once for all layers);
-    // `psi` is scratch: each orbit sets and reads only its own fibers.
-    let mut psi = vec![Complex64::new(0.0, 0.0); n1 * n2];
+    // Orbit by orbit (the gathers of an orbit are made once for all layers).
+    // ψ lives in a compact buffer of the orbit's own fibers (`slot`), so the
+    // many gathers per layer read a few hundred kilobytes, not whole spectra.
     let mut phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; lmax];
     let mut chosen = vec![vec![0u64; orbits.len()]; lmax];
+    let mut slot = vec![usize::MAX; l.fiber_count()];
+    let d = l.fiber_len();
     for (o, (orbit, sol)) in orbits.iter().zip(solutions).enumerate() {
         check(progress, "building generators", o as f64 / orbits.len() as f64)?;
         if sol.layers.iter().all(|q| q.ncols() == 0) {
             continue;
         }
+        for (j, &(fiber, _)) in orbit.points.iter().enumerate() {
+            slot[fiber] = j;
+        }
         let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
+        let local_transports: Vec<Gather> = transports.iter().map(|t| t.localised(l, &slot)).collect();
+        // Per point: the identity gather (to write φ) and every element's
+        // gather in the compact buffer (to read ψ).
+        let identity: Vec<Gather> = orbit.points.iter().map(|&(fiber, _)| sym.gather(l.fiber_rep(fiber), 0)).collect();
         let point_gathers: Vec<Vec<Gather>> = orbit
             .points
             .iter()
             .map(|&(fiber, _)| {
                 let xi = l.fiber_rep(fiber);
-                (0..sym.order()).map(|g| sym.gather(xi, g)).collect()
+                (0..sym.order()).map(|g| sym.gather(xi, g).localised(l, &slot)).collect()
             })
             .collect();
+        // The reference images transported to ξ0, one column per point, made
+        // when a candidate is first tried.
+        let mut transported: Vec<Option<DMatrix<Complex64>>> = vec![None; REFERENCES as usize];
+        let mut psi = vec![Complex64::new(0.0, 0.0); orbit.points.len() * d];
         for layer in 0..lmax {
             let q = &sol.layers[layer];
             let k = q.ncols();
@@ -129,10 +142,16 @@ pub(crate) fn parseval_generators(
             for c in candidates {
                 // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
                 // project on the layer's basis there, transport back.
-                for gather in &transports {
-                    let x = DVector::from_vec(gather.apply(&references[c as usize]));
-                    let y = q * (q.adjoint() * x);
-                    gather.scatter(y.as_slice(), &mut psi);
+                let x = transported[c as usize].get_or_insert_with(|| {
+                    let mut x = DMatrix::zeros(d, transports.len());
+                    for (j, t) in transports.iter().enumerate() {
+                        t.apply_into(&references[c as usize], x.column_mut(j).as_mut_slice());
+                    }
+                    x
+                });
+                let y = product(q, &adjoint_product(q, x));
+                for (j, t) in local_transports.iter().enumerate() {
+                    t.scatter(y.column(j).as_slice(), &mut psi);
                 }
                 let (fibers, worst) = orbit_generator(sym, orbit, &point_gathers, k, &psi);
                 let better = best.as_ref().map_or(true, |b| worst > b.2);
@@ -152,9 +171,12 @@ pub(crate) fn parseval_generators(
                 )));
             }
             chosen[layer][o] = c;
-            for ((_, v), gathers) in fibers.into_iter().zip(&point_gathers) {
-                gathers[0].scatter(v.as_slice(), &mut phis[layer]);
+            for ((_, v), gather) in fibers.into_iter().zip(&identity) {
+                gather.scatter(v.as_slice(), &mut phis[layer]);
             }
+        }
+        for &(fiber, _) in &orbit.points {
+            slot[fiber] = usize::MAX;
         }
     }
     let mut out = Vec::with_capacity(lmax);
