@@ -44,6 +44,7 @@
 //   export         parts: { pictures, arrays,   { files: [{ name, bytes }] }
 //                  report }
 //   legend         width                        picture of the residual colour scale, −1 … 1
+//   memory         -                            { bytes } the wasm memory's size (it only grows: the peak so far)
 // where images = [{ label, height, width }] is the whole stack after the
 // change and model = { settings, height, width, generators, grid }; grid is
 // null, or { samples, cells } when the model is on a measured lattice's grid
@@ -55,6 +56,7 @@
 
 import init, { Session, residualLegend } from './pkg/orbitspan_wasm.js';
 
+let wasm = null;
 const ready = startWasm();
 let session = null;
 let queue = Promise.resolve();
@@ -68,9 +70,9 @@ async function startWasm() {
   const inline = globalThis.orbitspanWasmBase64;
   if (inline) {
     const bytes = Uint8Array.from(atob(inline), (c) => c.charCodeAt(0));
-    await init({ module_or_path: bytes });
+    wasm = await init({ module_or_path: bytes });
   } else {
-    await init();
+    wasm = await init();
   }
   session = new Session();
 }
@@ -170,6 +172,8 @@ function run(op, m, progress) {
     }
     case 'export':
       return { files: exportFiles(m.parts) };
+    case 'memory':
+      return { bytes: wasm.memory.buffer.byteLength };
     case 'legend':
       return residualLegend(m.width);
     default:

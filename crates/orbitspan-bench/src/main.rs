@@ -4,14 +4,19 @@
 //!
 //! ```text
 //! cargo run --release -p orbitspan-bench [-- --quick] [--reps N] [--only W1,W3]
+//!     [--write-files DIR] [--browser DIR]
 //! ```
-//! (or `cargo xtask bench`). Writes `target/bench/bench.md` and
+//! (or `cargo xtask bench`, which also runs the browser side). `--write-files`
+//! writes the workloads as image files and stops; `--browser DIR` also times
+//! the native fit of the stacks decoded from those files and sets it against
+//! `DIR/browser.json` (see [`files`]). Writes `target/bench/bench.md` and
 //! `target/bench/bench.json`. Timings are medians over interleaved
 //! repetitions in one process; the table reports ratios measured in the same
 //! run, since absolute times on a shared machine are noisy.
 
 #[path = "../../orbitspan-core/tests/support/dense.rs"]
 mod dense;
+mod files;
 mod memory;
 mod workload;
 
@@ -25,16 +30,18 @@ use workload::Workload;
 #[global_allocator]
 static ALLOCATOR: memory::Counting = memory::Counting;
 
-const USAGE: &str = "usage: orbitspan-bench [--quick] [--reps N] [--only W1,W2,W3]";
+const USAGE: &str = "usage: orbitspan-bench [--quick] [--reps N] [--only W1,W2,W3] [--write-files DIR] [--browser DIR]";
 
 struct Options {
     quick: bool,
     reps: usize,
     only: Option<Vec<String>>,
+    write_files: Option<std::path::PathBuf>,
+    browser: Option<std::path::PathBuf>,
 }
 
 fn parse(args: &[String]) -> Result<Options, String> {
-    let mut o = Options { quick: false, reps: 3, only: None };
+    let mut o = Options { quick: false, reps: 3, only: None, write_files: None, browser: None };
     let mut it = args.iter();
     while let Some(a) = it.next() {
         match a.as_str() {
@@ -47,6 +54,8 @@ fn parse(args: &[String]) -> Result<Options, String> {
                 let v = it.next().ok_or("--only needs workload names, e.g. W1,W3")?;
                 o.only = Some(v.split(',').map(|s| s.trim().to_uppercase()).collect());
             }
+            "--write-files" => o.write_files = Some(it.next().ok_or("--write-files needs a directory")?.into()),
+            "--browser" => o.browser = Some(it.next().ok_or("--browser needs the directory of --write-files")?.into()),
             other => return Err(format!("unknown argument '{other}'\n{USAGE}")),
         }
     }
@@ -92,7 +101,24 @@ struct Results {
     memory_method: &'static str,
     workloads: Vec<WorkloadResult>,
     dense: Vec<DenseResult>,
-    wasm_over_native: &'static str,
+    browser: Vec<BrowserResult>,
+    /// Why there is no browser table, when there is none.
+    browser_note: Option<String>,
+}
+
+/// One workload in the browser (wasm, through the worker) against the
+/// native fit of the same decoded files, timed in this process.
+#[derive(Serialize)]
+struct BrowserResult {
+    name: String,
+    images: usize,
+    worker_seconds: f64,
+    page_seconds: f64,
+    native_seconds: f64,
+    wasm_over_native: f64,
+    wasm_memory_bytes: usize,
+    stack_f32_bytes: usize,
+    wasm_memory_over_stack_f32: f64,
 }
 
 fn median(mut v: Vec<f64>) -> f64 {
@@ -222,6 +248,49 @@ fn measure_dense(w: &Workload, reps: usize) -> DenseResult {
     DenseResult { description: w.description.clone(), dense_seconds: d, fit_seconds: f, dense_over_fit: d / f, curve_difference: difference }
 }
 
+/// Native fits of the stacks decoded from the workload files, against the
+/// browser's times for the same files.
+fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> bool) -> Result<Vec<BrowserResult>, String> {
+    let timings = files::browser_timings(dir).ok_or_else(|| format!("no {} (the browser side did not run)", dir.join("browser.json").display()))?;
+    let mut out = Vec::new();
+    for t in timings.iter().filter(|t| wanted(&t.name)) {
+        let w = workload::workloads(false)
+            .into_iter()
+            .chain(workload::workloads(true))
+            .find(|w| w.name == t.name)
+            .ok_or_else(|| format!("browser.json names an unknown workload {}", t.name))?;
+        let stack = files::load(dir, &t.name)?;
+        if stack.len() != t.images {
+            return Err(format!("{}: the page had {} images, the files decode to {}", t.name, t.images, stack.len()));
+        }
+        // (Quick and full workloads of one name share their settings.)
+        let native: Vec<f64> = (0..reps.max(1))
+            .map(|_| {
+                seconds(|| {
+                    std::hint::black_box(fit(&stack, &w.settings, &mut Silent).expect("benchmark fit"));
+                })
+            })
+            .collect();
+        let native = median(native);
+        let worker = median(t.worker_seconds.clone());
+        let page = median(t.page_seconds.clone());
+        let stack_f32 = stack.len() * stack.height() * stack.width() * 4;
+        eprintln!("browser {}: worker {worker:.3} s, page {page:.3} s, native {native:.3} s", t.name);
+        out.push(BrowserResult {
+            name: t.name.clone(),
+            images: stack.len(),
+            worker_seconds: worker,
+            page_seconds: page,
+            native_seconds: native,
+            wasm_over_native: worker / native,
+            wasm_memory_bytes: t.wasm_memory_bytes,
+            stack_f32_bytes: stack_f32,
+            wasm_memory_over_stack_f32: t.wasm_memory_bytes as f64 / stack_f32 as f64,
+        });
+    }
+    Ok(out)
+}
+
 fn mb(bytes: usize) -> String {
     format!("{:.1} MB", bytes as f64 / 1e6)
 }
@@ -261,7 +330,25 @@ fn table(r: &Results) -> String {
             d.description, d.dense_over_fit, d.dense_seconds, d.fit_seconds, d.curve_difference
         ));
     }
-    s.push_str(&format!("\nwasm / native: {}\n", r.wasm_over_native));
+    if r.browser.is_empty() {
+        s.push_str(&format!("\nwasm / native: not measured ({})\n", r.browser_note.as_deref().unwrap_or("no browser run")));
+    } else {
+        s.push_str("\n| in the browser (headless Chromium, one worker) | wasm / native | fit in the worker | request in the page | native, same files | wasm memory / stack f32 | wasm memory |\n");
+        s.push_str("|---|---|---|---|---|---|---|\n");
+        for b in &r.browser {
+            s.push_str(&format!(
+                "| {}: {} images | {:.2} | {:.3} s | {:.3} s | {:.3} s | {:.2} | {} |\n",
+                b.name,
+                b.images,
+                b.wasm_over_native,
+                b.worker_seconds,
+                b.page_seconds,
+                b.native_seconds,
+                b.wasm_memory_over_stack_f32,
+                mb(b.wasm_memory_bytes)
+            ));
+        }
+    }
     s
 }
 
@@ -275,6 +362,24 @@ fn main() {
         }
     };
     let wanted = |name: &str| options.only.as_ref().map_or(true, |o| o.iter().any(|n| n == name));
+    if let Some(dir) = &options.write_files {
+        let chosen: Vec<_> = workload::workloads(options.quick).into_iter().filter(|w| wanted(w.name)).collect();
+        if let Err(e) = files::write(dir, &chosen) {
+            eprintln!("orbitspan-bench: {e}");
+            std::process::exit(1);
+        }
+        return;
+    }
+    let (browser, browser_note) = match &options.browser {
+        None => (Vec::new(), Some("run through `cargo xtask bench` for the browser side".to_string())),
+        Some(dir) => match measure_browser(dir, options.reps, wanted) {
+            Ok(b) => (b, None),
+            Err(e) => {
+                eprintln!("orbitspan-bench: browser comparison skipped: {e}");
+                (Vec::new(), Some(e))
+            }
+        },
+    };
     let mut workloads = Vec::new();
     for w in workload::workloads(options.quick) {
         if wanted(w.name) {
@@ -289,7 +394,8 @@ fn main() {
         memory_method: "counting global allocator (heap bytes; the f64 stack itself included)",
         workloads,
         dense,
-        wasm_over_native: "not measured (no in-browser timing in this harness yet)",
+        browser,
+        browser_note,
     };
     let md = table(&results);
     print!("{md}");

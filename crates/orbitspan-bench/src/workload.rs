@@ -59,17 +59,21 @@ impl Workload {
 
     /// The stack, the same on every call.
     pub fn stack(&self) -> Stack {
+        let (images, tiles) = self.source_images();
+        let items = match tiles {
+            None => images.into_iter().enumerate().map(|(i, img)| (format!("image{i}"), img)).collect(),
+            Some(t) => cut_tiles("large", &images[0], t, t).expect("the image size is a multiple of the tile size"),
+        };
+        Stack::new(items).expect("generated images are valid")
+    }
+
+    /// The images before tiling (one large image when tiled) and the tile side.
+    pub fn source_images(&self) -> (Vec<Image>, Option<usize>) {
         let mut rng = SplitMix64(SEED ^ self.size as u64);
         let cell = self.settings.cell_rows;
         let motif: Vec<f64> = (0..cell * cell).map(|_| rng.between(-1.0, 1.0)).collect();
-        let items = match self.tiles {
-            None => (0..self.count).map(|i| (format!("image{i}"), image(&mut rng, self.size, cell, &motif))).collect(),
-            Some(t) => {
-                let big = image(&mut rng, self.size, cell, &motif);
-                cut_tiles("large", &big, t, t).expect("the image size is a multiple of the tile size")
-            }
-        };
-        Stack::new(items).expect("generated images are valid")
+        let count = if self.tiles.is_some() { 1 } else { self.count };
+        ((0..count).map(|_| image(&mut rng, self.size, cell, &motif)).collect(), self.tiles)
     }
 }
 

@@ -18,10 +18,10 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
-use crate::fit::{adjoint_product, check, gram, product, OrbitSolution};
+use crate::fit::{adjoint_product, check, product, OrbitSolution};
 use crate::prng::SplitMix64;
 use crate::progress::Progress;
-use crate::spectrum::{fft2, ifft2_real};
+use crate::spectrum::{fft2, ifft2_real_owned};
 use crate::stack::Image;
 use nalgebra::{DMatrix, DVector};
 use num_complex::Complex64;
@@ -56,7 +56,7 @@ fn orbit_generator(sym: &Symmetry, orbit: &Orbit, point_gathers: &[Vec<Gather>],
     for (&(fiber, _), gathers) in orbit.points.iter().zip(point_gathers) {
         let xi = l.fiber_rep(fiber);
         let w = gathered_matrix(gathers, &[psi]);
-        let eig = nalgebra::SymmetricEigen::new(gram(&w));
+        let eig = nalgebra::SymmetricEigen::new(narrow_gram(&w));
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
         let top = eig.eigenvalues[order[0]];
@@ -75,6 +75,22 @@ fn orbit_generator(sym: &Symmetry, orbit: &Orbit, point_gathers: &[Vec<Gather>],
     (out, worst)
 }
 
+/// `Wᴴ W` for a tall, narrow `W` (a few columns): one inner product per
+/// entry of the upper triangle, mirrored (cheaper than the blocked real
+/// products of `fit::gram` at this shape).
+fn narrow_gram(w: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+    let n = w.ncols();
+    let mut out = DMatrix::zeros(n, n);
+    for b in 0..n {
+        for a in 0..=b {
+            let z = w.column(a).dotc(&w.column(b));
+            out[(a, b)] = z;
+            out[(b, a)] = z.conj();
+        }
+    }
+    out
+}
+
 /// The Parseval generators `φ_1..φ_L` in the group frame (origin at (0,0)).
 ///
 /// Per orbit the reference image is the first of [`REFERENCES`] fixed ones
@@ -89,7 +105,8 @@ pub(crate) fn parseval_generators(
 ) -> Result<Vec<Generator>> {
     let l = sym.lattice();
     let [n1, n2] = l.torus();
-    let references: Vec<Vec<Complex64>> = (0..REFERENCES).map(|c| fft2(&reference_image(n1, n2, c))).collect();
+    // Reference spectra, each made when first needed (usually only the first).
+    let references: Vec<std::cell::OnceCell<Vec<Complex64>>> = (0..REFERENCES).map(|_| std::cell::OnceCell::new()).collect();
     // conjugate[o]: the orbit holding −ξ0.
     let mut orbit_of_fiber = vec![0; l.fiber_count()];
     for (o, orbit) in orbits.iter().enumerate() {
@@ -145,7 +162,8 @@ pub(crate) fn parseval_generators(
                 let x = transported[c as usize].get_or_insert_with(|| {
                     let mut x = DMatrix::zeros(d, transports.len());
                     for (j, t) in transports.iter().enumerate() {
-                        t.apply_into(&references[c as usize], x.column_mut(j).as_mut_slice());
+                        let e = references[c as usize].get_or_init(|| fft2(&reference_image(n1, n2, c)));
+                        t.apply_into(e, x.column_mut(j).as_mut_slice());
                     }
                     x
                 });
@@ -181,7 +199,7 @@ pub(crate) fn parseval_generators(
     }
     let mut out = Vec::with_capacity(lmax);
     for phi in phis {
-        let (image, imag) = ifft2_real(&phi, n1, n2);
+        let (image, imag) = ifft2_real_owned(phi, n1, n2);
         let norm = image.energy().sqrt();
         out.push(Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image });
     }

@@ -41,8 +41,9 @@ pub struct Model {
     width: usize,
     generators: Vec<Image>,
     symmetry: Symmetry,
-    /// Spectra of the generators in the group frame.
-    spectra: Vec<Vec<Complex64>>,
+    /// The generators' spectra in the group frame, made on first use (a
+    /// fit that only reports does not hold them).
+    spectra: std::sync::OnceLock<Vec<Vec<Complex64>>>,
 }
 
 #[derive(Serialize, Deserialize)]
@@ -75,7 +76,6 @@ impl Model {
                 settings.generators
             )));
         }
-        let mut spectra = Vec::with_capacity(generators.len());
         for (i, g) in generators.iter().enumerate() {
             if g.height != height || g.width != width {
                 return Err(Error::input(format!("generator {} is {}x{}, not {height}x{width}", i + 1, g.height, g.width)));
@@ -83,9 +83,8 @@ impl Model {
             if g.pixels.iter().any(|v| !v.is_finite()) {
                 return Err(Error::input(format!("generator {} has a value that is not a finite number", i + 1)));
             }
-            spectra.push(fft2(&to_group_frame(g, settings.origin)));
         }
-        Ok(Model { settings, height, width, generators, symmetry, spectra })
+        Ok(Model { settings, height, width, generators, symmetry, spectra: std::sync::OnceLock::new() })
     }
 
     pub fn settings(&self) -> &FitSettings {
@@ -119,7 +118,11 @@ impl Model {
     fn project_batch(&self, images: &[&Image]) -> Vec<Image> {
         let origin = self.settings.origin;
         let mut spectra: Vec<Vec<Complex64>> = images.iter().map(|img| fft2(&to_group_frame(img, origin))).collect();
-        frame_project(&self.symmetry, &self.spectra, &mut spectra);
+        let generator_spectra = self.spectra.get_or_init(|| {
+            let origin = self.settings.origin;
+            self.generators.iter().map(|g| fft2(&to_group_frame(g, origin))).collect()
+        });
+        frame_project(&self.symmetry, generator_spectra, &mut spectra);
         spectra
             .iter()
             .map(|s| from_group_frame(&ifft2_real(s, self.height, self.width).0, origin))

@@ -41,7 +41,11 @@ pub fn fft2(image: &Image) -> Vec<Complex64> {
 /// The inverse transform `|T|⁻¹ Σ_ξ f̂(ξ) e^{+2πi ξ·x/n}`, returning the real
 /// part and the largest imaginary part seen (a check for conjugate symmetry).
 pub fn ifft2_real(spectrum: &[Complex64], n1: usize, n2: usize) -> (Image, f64) {
-    let mut data = spectrum.to_vec();
+    ifft2_real_owned(spectrum.to_vec(), n1, n2)
+}
+
+/// [`ifft2_real`] transforming the given spectrum in place (no copy).
+pub fn ifft2_real_owned(mut data: Vec<Complex64>, n1: usize, n2: usize) -> (Image, f64) {
     fft2_in_place(&mut data, n1, n2, true);
     let scale = 1.0 / (n1 * n2) as f64;
     let max_imag = data.iter().fold(0.0f64, |m, z| m.max((z.im * scale).abs()));
