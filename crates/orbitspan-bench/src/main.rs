@@ -116,6 +116,9 @@ struct BrowserResult {
     page_seconds: f64,
     native_seconds: f64,
     wasm_over_native: f64,
+    /// The native fit on one thread, like the single wasm worker.
+    native_one_thread_seconds: f64,
+    wasm_over_native_one_thread: f64,
     wasm_memory_bytes: usize,
     stack_f32_bytes: usize,
     wasm_memory_over_stack_f32: f64,
@@ -264,18 +267,24 @@ fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> 
             return Err(format!("{}: the page had {} images, the files decode to {}", t.name, t.images, stack.len()));
         }
         // (Quick and full workloads of one name share their settings.)
-        let native: Vec<f64> = (0..reps.max(1))
-            .map(|_| {
+        // Interleaved: all threads, then one thread, per repetition.
+        let (mut all, mut one) = (Vec::new(), Vec::new());
+        for _ in 0..reps.max(1) {
+            let once = || {
                 seconds(|| {
                     std::hint::black_box(fit(&stack, &w.settings, &mut Silent).expect("benchmark fit"));
                 })
-            })
-            .collect();
-        let native = median(native);
+            };
+            all.push(once());
+            orbitspan_core::fiber::set_thread_limit(1);
+            one.push(once());
+            orbitspan_core::fiber::set_thread_limit(0);
+        }
+        let (native, native_one) = (median(all), median(one));
         let worker = median(t.worker_seconds.clone());
         let page = median(t.page_seconds.clone());
         let stack_f32 = stack.len() * stack.height() * stack.width() * 4;
-        eprintln!("browser {}: worker {worker:.3} s, page {page:.3} s, native {native:.3} s", t.name);
+        eprintln!("browser {}: worker {worker:.3} s, page {page:.3} s, native {native:.3} s, native one thread {native_one:.3} s", t.name);
         out.push(BrowserResult {
             name: t.name.clone(),
             images: stack.len(),
@@ -283,6 +292,8 @@ fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> 
             page_seconds: page,
             native_seconds: native,
             wasm_over_native: worker / native,
+            native_one_thread_seconds: native_one,
+            wasm_over_native_one_thread: worker / native_one,
             wasm_memory_bytes: t.wasm_memory_bytes,
             stack_f32_bytes: stack_f32,
             wasm_memory_over_stack_f32: t.wasm_memory_bytes as f64 / stack_f32 as f64,
@@ -333,17 +344,19 @@ fn table(r: &Results) -> String {
     if r.browser.is_empty() {
         s.push_str(&format!("\nwasm / native: not measured ({})\n", r.browser_note.as_deref().unwrap_or("no browser run")));
     } else {
-        s.push_str("\n| in the browser (headless Chromium, one worker) | wasm / native | fit in the worker | request in the page | native, same files | wasm memory / stack f32 | wasm memory |\n");
-        s.push_str("|---|---|---|---|---|---|---|\n");
+        s.push_str("\n| in the browser (headless Chromium, one worker) | wasm / native (all threads) | wasm / native (one thread) | fit in the worker | request in the page | native, same files | native, one thread | wasm memory / stack f32 | wasm memory |\n");
+        s.push_str("|---|---|---|---|---|---|---|---|---|\n");
         for b in &r.browser {
             s.push_str(&format!(
-                "| {}: {} images | {:.2} | {:.3} s | {:.3} s | {:.3} s | {:.2} | {} |\n",
+                "| {}: {} images | {:.2} | {:.2} | {:.3} s | {:.3} s | {:.3} s | {:.3} s | {:.2} | {} |\n",
                 b.name,
                 b.images,
                 b.wasm_over_native,
+                b.wasm_over_native_one_thread,
                 b.worker_seconds,
                 b.page_seconds,
                 b.native_seconds,
+                b.native_one_thread_seconds,
                 b.wasm_memory_over_stack_f32,
                 mb(b.wasm_memory_bytes)
             ));

@@ -240,13 +240,27 @@ impl Symmetry {
     }
 }
 
-/// Threads for per-orbit work: the available cores (at most 8), one on wasm
-/// (no threads there without cross-origin isolation).
+/// A limit on [`worker_threads`] set by [`set_thread_limit`] (0: none).
+static THREAD_LIMIT: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+/// Limits the threads of later fits in this process (0 removes the limit).
+/// Results do not depend on it; benchmarks use it to compare one thread
+/// with the single-threaded wasm build.
+pub fn set_thread_limit(threads: usize) {
+    THREAD_LIMIT.store(threads, std::sync::atomic::Ordering::Relaxed);
+}
+
+/// Threads for per-orbit work: the available cores (at most 8, or the
+/// [`set_thread_limit`]), one on wasm (no threads there without
+/// cross-origin isolation).
 pub fn worker_threads() -> usize {
     if cfg!(target_arch = "wasm32") {
-        1
-    } else {
-        std::thread::available_parallelism().map_or(1, |n| n.get().min(8))
+        return 1;
+    }
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get().min(8));
+    match THREAD_LIMIT.load(std::sync::atomic::Ordering::Relaxed) {
+        0 => cores,
+        limit => cores.min(limit),
     }
 }
 

@@ -7,7 +7,10 @@
 //! acts on each isotypic component `W` as one scalar; the eigenspaces of its
 //! Hermitian part are the components. For each, `χ_W(h) = tr(P_W U_h)`, the
 //! multiplicity is `m = sqrt(mean_h |χ_W(h)|²)` and the type dimension is
-//! `s = dim W / m`; both must be integers, which is checked. With real weights
+//! `s = dim W / m`; both must be integers, which is checked. The operators
+//! are monomial, so `A` and `Z` are block diagonal over the orbits of `H` on
+//! the coordinates: the eigen-decomposition is done per orbit (blocks of at
+//! most `|H|`), not on the whole `n x n` matrix. With real weights
 //! a complex type would merge with its conjugate and `m` would come out as
 //! `√2` times an integer.
 
@@ -36,13 +39,6 @@ impl Monomial {
             m[(a, self.perm[a])] = self.phase[a];
         }
         m
-    }
-    fn inverse_perm(&self) -> Vec<usize> {
-        let mut inv = vec![0; self.perm.len()];
-        for (a, &p) in self.perm.iter().enumerate() {
-            inv[p] = a;
-        }
-        inv
     }
 }
 
@@ -73,44 +69,98 @@ pub fn isotypic_blocks(n: usize, ops: &[Monomial]) -> Result<Vec<Block>> {
     Err(Error::Internal(format!("isotypic decomposition failed: {last}")))
 }
 
-fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<Vec<Block>, String> {
-    let mut rng = SplitMix64(0x6f72_6269_7473_7061 ^ attempt.wrapping_mul(0x1234_5678_9abc_def1));
-    let mut a = DMatrix::<Complex64>::zeros(n, n);
-    for op in ops {
-        let w = Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0));
-        for r in 0..n {
-            a[(r, op.perm[r])] += w * op.phase[r];
+/// The orbits of the group on the coordinates (`a ~ perm_h[a]`): each spans
+/// an invariant subspace, so `A` and `Z` below are block diagonal with one
+/// block per coordinate orbit (at most `|H|` coordinates each), and their
+/// eigen-decompositions are those of the small blocks.
+fn coordinate_orbits(n: usize, ops: &[Monomial]) -> Vec<Vec<usize>> {
+    let mut root: Vec<usize> = (0..n).collect();
+    fn find(root: &mut [usize], mut a: usize) -> usize {
+        while root[a] != a {
+            root[a] = root[root[a]];
+            a = root[a];
         }
+        a
     }
-    // Z = Σ_h U_hᴴ A U_h: (Uᴴ A U)[x, y] = conj(phase[p(x)]) A[p(x), p(y)] phase[p(y)], p = perm⁻¹.
-    let mut z = DMatrix::<Complex64>::zeros(n, n);
     for op in ops {
-        let inv = op.inverse_perm();
-        for y in 0..n {
-            let (py, cy) = (inv[y], op.phase[inv[y]]);
-            for x in 0..n {
-                let px = inv[x];
-                z[(x, y)] += op.phase[px].conj() * a[(px, py)] * cy;
+        for a in 0..n {
+            let (x, y) = (find(&mut root, a), find(&mut root, op.perm[a]));
+            if x != y {
+                root[x.max(y)] = x.min(y);
             }
         }
     }
-    let zh = (&z + z.adjoint()) * Complex64::new(0.5, 0.0);
-    let eig = nalgebra::SymmetricEigen::new(zh);
-    let mut order: Vec<usize> = (0..n).collect();
-    order.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
-    let scale = eig.eigenvalues.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(1e-300);
+    let mut members: Vec<Vec<usize>> = vec![Vec::new(); n];
+    for a in 0..n {
+        let r = find(&mut root, a);
+        members[r].push(a);
+    }
+    members.into_iter().filter(|m| !m.is_empty()).collect()
+}
+
+fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<Vec<Block>, String> {
+    let mut rng = SplitMix64(0x6f72_6269_7473_7061 ^ attempt.wrapping_mul(0x1234_5678_9abc_def1));
+    let weights: Vec<Complex64> = ops.iter().map(|_| Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0))).collect();
+    // Per coordinate orbit S: A_S = Σ_h w_h U_h and Z_S = Σ_h U_hᴴ A_S U_h on S;
+    // eigenpairs (value, vector on S) of the Hermitian part of Z_S.
+    let mut pairs: Vec<(f64, Vec<usize>, Vec<Complex64>)> = Vec::with_capacity(n);
+    let mut position = vec![0usize; n];
+    for orbit in coordinate_orbits(n, ops) {
+        let k = orbit.len();
+        for (i, &a) in orbit.iter().enumerate() {
+            position[a] = i;
+        }
+        let mut a = DMatrix::<Complex64>::zeros(k, k);
+        for (op, &w) in ops.iter().zip(&weights) {
+            for (i, &r) in orbit.iter().enumerate() {
+                a[(i, position[op.perm[r]])] += w * op.phase[r];
+            }
+        }
+        // (Uᴴ A U)[x, y] = conj(phase[p(x)]) A[p(x), p(y)] phase[p(y)], p = perm⁻¹.
+        let mut z = DMatrix::<Complex64>::zeros(k, k);
+        for op in ops {
+            let mut inv = vec![0usize; k];
+            for (i, &r) in orbit.iter().enumerate() {
+                inv[position[op.perm[r]]] = i;
+            }
+            for y in 0..k {
+                let py = inv[y];
+                let cy = op.phase[orbit[py]];
+                for x in 0..k {
+                    let px = inv[x];
+                    z[(x, y)] += op.phase[orbit[px]].conj() * a[(px, py)] * cy;
+                }
+            }
+        }
+        let zh = (&z + z.adjoint()) * Complex64::new(0.5, 0.0);
+        let eig = nalgebra::SymmetricEigen::new(zh);
+        for e in 0..k {
+            pairs.push((eig.eigenvalues[e], orbit.clone(), eig.eigenvectors.column(e).iter().copied().collect()));
+        }
+    }
+    pairs.sort_by(|p, q| p.0.total_cmp(&q.0));
+    let scale = pairs.iter().fold(0.0f64, |m, p| m.max(p.0.abs())).max(1e-300);
     let tol = 1e-7 * scale;
     let mut clusters: Vec<Vec<usize>> = Vec::new();
-    for &i in &order {
+    for i in 0..pairs.len() {
         match clusters.last_mut() {
-            Some(c) if (eig.eigenvalues[i] - eig.eigenvalues[*c.last().unwrap()]).abs() <= tol => c.push(i),
+            Some(c) if (pairs[i].0 - pairs[*c.last().unwrap()].0).abs() <= tol => c.push(i),
             _ => clusters.push(vec![i]),
         }
     }
+    let eig_vectors = |c: &[usize]| {
+        let mut basis = DMatrix::<Complex64>::zeros(n, c.len());
+        for (col, &i) in c.iter().enumerate() {
+            for (&r, &v) in pairs[i].1.iter().zip(&pairs[i].2) {
+                basis[(r, col)] = v;
+            }
+        }
+        basis
+    };
     let mut blocks = Vec::with_capacity(clusters.len());
     let mut covered = 0;
     for c in clusters {
-        let basis = DMatrix::from_fn(n, c.len(), |r, k| eig.eigenvectors[(r, c[k])]);
+        let basis = eig_vectors(&c);
         let mut sum_sq = 0.0;
         for op in ops {
             let mut chi = Complex64::new(0.0, 0.0);
@@ -160,6 +210,34 @@ mod tests {
         assert_eq!(blocks.len(), 4);
         for b in &blocks {
             assert_eq!((b.type_dim, b.multiplicity), (1, 1));
+        }
+    }
+
+    #[test]
+    fn components_of_fiber_actions_are_invariant_and_complete() {
+        // The stabiliser actions on Fourier fibers of several groups: the
+        // projectors P_W = B Bᴴ sum to the identity, commute with every U_h,
+        // and dim W = multiplicity x type dimension.
+        use crate::fiber::Symmetry;
+        use crate::plane_group::{GroupSymbol, PlaneGroup};
+        for (symbol, cell) in [(GroupSymbol::P4m, 4), (GroupSymbol::P4g, 4), (GroupSymbol::P6m, 6), (GroupSymbol::Cmm, 4), (GroupSymbol::P3m1, 6)] {
+            let sym = Symmetry::new([4 * cell, 4 * cell], [cell, cell], &PlaneGroup::standard(symbol)).unwrap();
+            for orbit in sym.orbits().iter().filter(|o| o.stabiliser.len() > 1) {
+                let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| sym.fiber_unitary(orbit.rep, h).unwrap()).collect();
+                let n = ops[0].perm.len();
+                let blocks = isotypic_blocks(n, &ops).unwrap();
+                let mut sum = DMatrix::<Complex64>::zeros(n, n);
+                for b in &blocks {
+                    assert_eq!(b.basis.ncols(), b.type_dim * b.multiplicity);
+                    let p = &b.basis * b.basis.adjoint();
+                    for op in &ops {
+                        let u = op.to_dense();
+                        assert!((&p * &u - &u * &p).norm() < 1e-9, "{symbol:?} at {:?}: not invariant", orbit.rep);
+                    }
+                    sum += p;
+                }
+                assert!((sum - DMatrix::<Complex64>::identity(n, n)).norm() < 1e-9, "{symbol:?} at {:?}: not complete", orbit.rep);
+            }
         }
     }
 
