@@ -18,6 +18,7 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
+use std::sync::OnceLock;
 use crate::fit::{adjoint_product, check, product, OrbitSolution};
 use crate::prng::SplitMix64;
 use crate::progress::Progress;
@@ -106,7 +107,7 @@ pub(crate) fn parseval_generators(
     let l = sym.lattice();
     let [n1, n2] = l.torus();
     // Reference spectra, each made when first needed (usually only the first).
-    let references: Vec<std::cell::OnceCell<Vec<Complex64>>> = (0..REFERENCES).map(|_| std::cell::OnceCell::new()).collect();
+    let references: Vec<OnceLock<Vec<Complex64>>> = (0..REFERENCES).map(|_| OnceLock::new()).collect();
     // conjugate[o]: the orbit holding −ξ0.
     let mut orbit_of_fiber = vec![0; l.fiber_count()];
     for (o, orbit) in orbits.iter().enumerate() {
@@ -115,27 +116,82 @@ pub(crate) fn parseval_generators(
         }
     }
     let conjugate: Vec<usize> = orbits.iter().map(|o| orbit_of_fiber[l.fiber_of(l.neg(o.rep))]).collect();
-    // Orbit by orbit (the gathers of an orbit are made once for all layers).
-    // ψ lives in a compact buffer of the orbit's own fibers (`slot`), so the
-    // many gathers per layer read a few hundred kilobytes, not whole spectra.
+    // Orbits on several threads, in two waves: first every orbit that
+    // chooses its own references, then the conjugates −O that reuse the
+    // choice made for O. Each orbit writes only its own fibers of φ, on
+    // this thread, so the result does not depend on the thread count.
     let mut phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; lmax];
     let mut chosen = vec![vec![0u64; orbits.len()]; lmax];
-    let mut slot = vec![usize::MAX; l.fiber_count()];
+    let (first, second): (Vec<usize>, Vec<usize>) = (0..orbits.len()).partition(|&o| conjugate[o] >= o);
+    let mut done = 0;
+    for wave in [first, second] {
+        let forced: Vec<Option<Vec<u64>>> = wave
+            .iter()
+            .map(|&o| (conjugate[o] < o).then(|| (0..lmax).map(|layer| chosen[layer][conjugate[o]]).collect()))
+            .collect();
+        for_each_parallel(
+            wave.len(),
+            |k| orbit_generators(sym, &orbits[wave[k]], &solutions[wave[k]], lmax, forced[k].as_deref(), &references),
+            |k, result| {
+                let fibers = result?;
+                for (layer, (c, points)) in fibers.into_iter().enumerate() {
+                    chosen[layer][wave[k]] = c;
+                    for (gather, v) in points {
+                        gather.scatter(v.as_slice(), &mut phis[layer]);
+                    }
+                }
+                done += 1;
+                check(progress, "building generators", done as f64 / orbits.len() as f64)
+            },
+        )?;
+    }
+    let mut out = Vec::with_capacity(lmax);
+    for phi in phis {
+        let (image, imag) = ifft2_real_owned(phi, n1, n2);
+        let norm = image.energy().sqrt();
+        out.push(Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image });
+    }
+    Ok(out)
+}
+
+thread_local! {
+    /// Per thread: fiber → slot of the orbit being worked on (`usize::MAX`
+    /// elsewhere), reused from orbit to orbit.
+    static SLOTS: std::cell::RefCell<Vec<usize>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// One orbit's share of every generator: per layer, the reference chosen
+/// and `φ_l` at each point (its identity gather, to write it, and values).
+/// `forced` gives the references to use (the conjugate orbit's choice).
+#[allow(clippy::type_complexity)]
+fn orbit_generators(
+    sym: &Symmetry,
+    orbit: &Orbit,
+    sol: &OrbitSolution,
+    lmax: usize,
+    forced: Option<&[u64]>,
+    references: &[OnceLock<Vec<Complex64>>],
+) -> Result<Vec<(u64, Vec<(Gather, DVector<Complex64>)>)>> {
+    let l = sym.lattice();
+    let [n1, n2] = l.torus();
     let d = l.fiber_len();
-    for (o, (orbit, sol)) in orbits.iter().zip(solutions).enumerate() {
-        check(progress, "building generators", o as f64 / orbits.len() as f64)?;
-        if sol.layers.iter().all(|q| q.ncols() == 0) {
-            continue;
+    if sol.layers.iter().all(|q| q.ncols() == 0) {
+        return Ok((0..lmax).map(|_| (0, Vec::new())).collect());
+    }
+    // ψ lives in a compact buffer of the orbit's own fibers, so the many
+    // gathers per layer read a few hundred kilobytes, not whole spectra.
+    let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
+    let (local_transports, point_gathers) = SLOTS.with(|slots| {
+        let mut slot = slots.borrow_mut();
+        if slot.len() != l.fiber_count() {
+            *slot = vec![usize::MAX; l.fiber_count()];
         }
         for (j, &(fiber, _)) in orbit.points.iter().enumerate() {
             slot[fiber] = j;
         }
-        let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
-        let local_transports: Vec<Gather> = transports.iter().map(|t| t.localised(l, &slot)).collect();
-        // Per point: the identity gather (to write φ) and every element's
-        // gather in the compact buffer (to read ψ).
-        let identity: Vec<Gather> = orbit.points.iter().map(|&(fiber, _)| sym.gather(l.fiber_rep(fiber), 0)).collect();
-        let point_gathers: Vec<Vec<Gather>> = orbit
+        let local: Vec<Gather> = transports.iter().map(|t| t.localised(l, &slot)).collect();
+        // Per point, every element's gather in the compact buffer (to read ψ).
+        let points: Vec<Vec<Gather>> = orbit
             .points
             .iter()
             .map(|&(fiber, _)| {
@@ -143,65 +199,63 @@ pub(crate) fn parseval_generators(
                 (0..sym.order()).map(|g| sym.gather(xi, g).localised(l, &slot)).collect()
             })
             .collect();
-        // The reference images transported to ξ0, one column per point, made
-        // when a candidate is first tried.
-        let mut transported: Vec<Option<DMatrix<Complex64>>> = vec![None; REFERENCES as usize];
-        let mut psi = vec![Complex64::new(0.0, 0.0); orbit.points.len() * d];
-        for layer in 0..lmax {
-            let q = &sol.layers[layer];
-            let k = q.ncols();
-            if k == 0 {
-                continue;
-            }
-            let candidates: Vec<u64> =
-                if conjugate[o] < o { vec![chosen[layer][conjugate[o]]] } else { (0..REFERENCES).collect() };
-            let mut best: Option<(u64, Vec<([usize; 2], DVector<Complex64>)>, f64)> = None;
-            for c in candidates {
-                // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
-                // project on the layer's basis there, transport back.
-                let x = transported[c as usize].get_or_insert_with(|| {
-                    let mut x = DMatrix::zeros(d, transports.len());
-                    for (j, t) in transports.iter().enumerate() {
-                        let e = references[c as usize].get_or_init(|| fft2(&reference_image(n1, n2, c)));
-                        t.apply_into(e, x.column_mut(j).as_mut_slice());
-                    }
-                    x
-                });
-                let y = product(q, &adjoint_product(q, x));
-                for (j, t) in local_transports.iter().enumerate() {
-                    t.scatter(y.column(j).as_slice(), &mut psi);
-                }
-                let (fibers, worst) = orbit_generator(sym, orbit, &point_gathers, k, &psi);
-                let better = best.as_ref().map_or(true, |b| worst > b.2);
-                if better {
-                    best = Some((c, fibers, worst));
-                }
-                if worst >= GOOD_CONDITIONING {
-                    break;
-                }
-            }
-            let (c, fibers, worst) = best.expect("at least one candidate");
-            if !(worst > 1e-20) {
-                return Err(Error::Internal(format!(
-                    "generator {} at frequency {:?}: no reference vector generates its layer",
-                    layer + 1,
-                    orbit.rep
-                )));
-            }
-            chosen[layer][o] = c;
-            for ((_, v), gather) in fibers.into_iter().zip(&identity) {
-                gather.scatter(v.as_slice(), &mut phis[layer]);
-            }
-        }
         for &(fiber, _) in &orbit.points {
             slot[fiber] = usize::MAX;
         }
-    }
+        (local, points)
+    });
+    // Per point, the identity gather (to write φ).
+    let identity: Vec<Gather> = orbit.points.iter().map(|&(fiber, _)| sym.gather(l.fiber_rep(fiber), 0)).collect();
+    // The reference images transported to ξ0, one column per point, made
+    // when a candidate is first tried.
+    let mut transported: Vec<Option<DMatrix<Complex64>>> = vec![None; REFERENCES as usize];
+    let mut psi = vec![Complex64::new(0.0, 0.0); orbit.points.len() * d];
     let mut out = Vec::with_capacity(lmax);
-    for phi in phis {
-        let (image, imag) = ifft2_real_owned(phi, n1, n2);
-        let norm = image.energy().sqrt();
-        out.push(Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image });
+    for layer in 0..lmax {
+        let q = &sol.layers[layer];
+        let k = q.ncols();
+        if k == 0 {
+            out.push((0, Vec::new()));
+            continue;
+        }
+        let candidates: Vec<u64> = match forced {
+            Some(f) => vec![f[layer]],
+            None => (0..REFERENCES).collect(),
+        };
+        let mut best: Option<(u64, Vec<([usize; 2], DVector<Complex64>)>, f64)> = None;
+        for c in candidates {
+            // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
+            // project on the layer's basis there, transport back.
+            let x = transported[c as usize].get_or_insert_with(|| {
+                let e = references[c as usize].get_or_init(|| fft2(&reference_image(n1, n2, c)));
+                let mut x = DMatrix::zeros(d, transports.len());
+                for (j, t) in transports.iter().enumerate() {
+                    t.apply_into(e, x.column_mut(j).as_mut_slice());
+                }
+                x
+            });
+            let y = product(q, &adjoint_product(q, x));
+            for (j, t) in local_transports.iter().enumerate() {
+                t.scatter(y.column(j).as_slice(), &mut psi);
+            }
+            let (fibers, worst) = orbit_generator(sym, orbit, &point_gathers, k, &psi);
+            let better = best.as_ref().map_or(true, |b| worst > b.2);
+            if better {
+                best = Some((c, fibers, worst));
+            }
+            if worst >= GOOD_CONDITIONING {
+                break;
+            }
+        }
+        let (c, fibers, worst) = best.expect("at least one candidate");
+        if !(worst > 1e-20) {
+            return Err(Error::Internal(format!(
+                "generator {} at frequency {:?}: no reference vector generates its layer",
+                layer + 1,
+                orbit.rep
+            )));
+        }
+        out.push((c, fibers.into_iter().zip(&identity).map(|((_, v), g)| (g.clone(), v)).collect()));
     }
     Ok(out)
 }
