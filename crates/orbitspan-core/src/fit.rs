@@ -452,7 +452,8 @@ fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep
 
 /// How [`per_image_discarded`] measures what the layers leave out.
 enum Discard {
-    /// An orthonormal basis of the kept space: discarded = `||v||² − ||Qᴴv||²`.
+    /// An orthonormal basis of the kept space: discarded = `||v||² − ||Qᴴv||²`,
+    /// or `||v − Q Qᴴ v||²` when that difference is below `1e-6 ||v||²`.
     Captured(DMatrix<Complex64>),
     /// An orthonormal basis of its complement: discarded = `||Rᴴv||²`.
     Complement(DMatrix<Complex64>),
@@ -478,7 +479,16 @@ fn per_image_discarded(point_gathers: &[Gather], spectra: &[Vec<Complex64>], dis
         for (c, &(i, _)) in chunk.iter().enumerate() {
             let inside = projected.as_ref().map_or(0.0, |p| p.column(c).norm_squared());
             out[i] += match discard {
-                Discard::Captured(_) => (x.column(c).norm_squared() - inside).max(0.0),
+                Discard::Captured(q) => {
+                    let energy = x.column(c).norm_squared();
+                    let left = energy - inside;
+                    match &projected {
+                        // Nearly all captured: the difference has lost its
+                        // digits, so take the residual vector itself.
+                        Some(p) if left < 1e-6 * energy => (x.column(c) - q * p.column(c)).norm_squared(),
+                        _ => left.max(0.0),
+                    }
+                }
                 Discard::Complement(_) => inside,
             };
         }
