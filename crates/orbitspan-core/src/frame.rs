@@ -12,7 +12,12 @@
 //!
 //! `S_ψ` is fiberwise: at the fiber `ξ`, `S(ξ) = d⁻¹ W Wᴴ` with `W` the `d x |G|`
 //! matrix whose columns are the fibers at `ξ` of `π(γ_g) ψ`. With `W*W =
-//! V Σ² V*` (top `k = dim D_l(ξ)` eigenpairs), `φ(ξ) = √d W V Σ⁻¹ V* e_1`.
+//! V Σ² V*` (top `k = dim D_l(ξ)` eigenpairs), `S(ξ)^{−1/2} = √d W V Σ⁻³ V* W*`
+//! on the range. `S_ψ` commutes with `Γ`, so at an orbit's point
+//! `ξ_j = g_jᵀ ξ0` it is the transport of `S(ξ0)`: with `T_j` the transport
+//! (the gather of `g_j` at `ξ0` reads `T_jᴴ f̂(ξ_j)`),
+//! `φ(ξ_j) = T_j S(ξ0)^{−1/2} T_jᴴ ψ(ξ_j)`, one decomposition per orbit and
+//! layer at `ξ0`.
 //! The frame projection is `P_V(ξ) = d⁻¹ Σ_{g,l} w_{g,l} w_{g,l}*` with
 //! `w_{g,l}` the fiber at `ξ` of `π(γ_g) φ_l`.
 
@@ -46,34 +51,30 @@ fn reference_image(n1: usize, n2: usize, which: u64) -> Image {
 const REFERENCES: u64 = 4;
 const GOOD_CONDITIONING: f64 = 1e-4;
 
-/// `φ` at every point of one orbit from `ψ` (already set on the orbit), with
-/// the worst conditioning met. `point_gathers[j][g]` is the gather at the
-/// orbit's point `j` for the point-group element `g`.
-fn orbit_generator(sym: &Symmetry, orbit: &Orbit, point_gathers: &[Vec<Gather>], k: usize, psi: &[Complex64]) -> (Vec<([usize; 2], DVector<Complex64>)>, f64) {
-    let l = sym.lattice();
-    let d = l.fiber_len();
-    let mut worst = f64::INFINITY;
-    let mut out = Vec::with_capacity(orbit.points.len());
-    for (&(fiber, _), gathers) in orbit.points.iter().zip(point_gathers) {
-        let xi = l.fiber_rep(fiber);
-        let w = gathered_matrix(gathers, &[psi]);
-        let eig = nalgebra::SymmetricEigen::new(narrow_gram(&w));
-        let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
-        order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
-        let top = eig.eigenvalues[order[0]];
-        let kth = eig.eigenvalues[order[k - 1]];
-        let ratio = if top > 0.0 && kth > 0.0 { kth / top } else { 0.0 };
-        worst = worst.min(ratio);
-        let mut coef = DVector::<Complex64>::zeros(sym.order());
-        if ratio > 0.0 {
-            for &e in &order[..k] {
-                let v = eig.eigenvectors.column(e);
-                coef += v * (v[0].conj() / eig.eigenvalues[e].sqrt());
-            }
+/// `T_jᴴ φ(ξ_j)` for every point `j` of one orbit (columns), from `y` with
+/// columns `T_jᴴ ψ(ξ_j)` and `ψ` (set on the orbit, in the compact buffer
+/// that `rep_gathers`, the gathers at `ξ0` of every element, read), with
+/// the conditioning met (smallest over largest kept eigenvalue of `WᴴW`).
+fn orbit_generator(d: usize, rep_gathers: &[Gather], k: usize, psi: &[Complex64], y: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
+    let w = gathered_matrix(rep_gathers, &[psi]);
+    let eig = nalgebra::SymmetricEigen::new(narrow_gram(&w));
+    let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
+    order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
+    let top = eig.eigenvalues[order[0]];
+    let kth = eig.eigenvalues[order[k - 1]];
+    let ratio = if top > 0.0 && kth > 0.0 { kth / top } else { 0.0 };
+    let n = eig.eigenvalues.len();
+    // M = V Σ⁻³ Vᴴ over the top k eigenpairs; φ0 = √d W M (Wᴴ y).
+    let mut m = DMatrix::<Complex64>::zeros(n, n);
+    if ratio > 0.0 {
+        for &e in &order[..k] {
+            let v = eig.eigenvectors.column(e);
+            let scale = Complex64::new(eig.eigenvalues[e].powf(-1.5), 0.0);
+            m += (v * scale) * v.adjoint();
         }
-        out.push((xi, (&w * coef) * Complex64::new((d as f64).sqrt(), 0.0)));
     }
-    (out, worst)
+    let phi = product(&w, &(m * adjoint_product(&w, y))) * Complex64::new((d as f64).sqrt(), 0.0);
+    (phi, ratio)
 }
 
 /// `Wᴴ W` for a tall, narrow `W` (a few columns): one inner product per
@@ -161,7 +162,8 @@ thread_local! {
 }
 
 /// One orbit's share of every generator: per layer, the reference chosen
-/// and `φ_l` at each point (its identity gather, to write it, and values).
+/// and `T_jᴴ φ_l(ξ_j)` at each point `j` with its transport (whose scatter
+/// writes `φ_l(ξ_j)`).
 /// `forced` gives the references to use (the conjugate orbit's choice).
 #[allow(clippy::type_complexity)]
 fn orbit_generators(
@@ -181,7 +183,7 @@ fn orbit_generators(
     // ψ lives in a compact buffer of the orbit's own fibers, so the many
     // gathers per layer read a few hundred kilobytes, not whole spectra.
     let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
-    let (local_transports, point_gathers) = SLOTS.with(|slots| {
+    let (local_transports, rep_gathers) = SLOTS.with(|slots| {
         let mut slot = slots.borrow_mut();
         if slot.len() != l.fiber_count() {
             *slot = vec![usize::MAX; l.fiber_count()];
@@ -190,22 +192,13 @@ fn orbit_generators(
             slot[fiber] = j;
         }
         let local: Vec<Gather> = transports.iter().map(|t| t.localised(l, &slot)).collect();
-        // Per point, every element's gather in the compact buffer (to read ψ).
-        let points: Vec<Vec<Gather>> = orbit
-            .points
-            .iter()
-            .map(|&(fiber, _)| {
-                let xi = l.fiber_rep(fiber);
-                (0..sym.order()).map(|g| sym.gather(xi, g).localised(l, &slot)).collect()
-            })
-            .collect();
+        // Every element's gather at ξ0 in the compact buffer (to read ψ).
+        let at_rep: Vec<Gather> = (0..sym.order()).map(|g| sym.gather(orbit.rep, g).localised(l, &slot)).collect();
         for &(fiber, _) in &orbit.points {
             slot[fiber] = usize::MAX;
         }
-        (local, points)
+        (local, at_rep)
     });
-    // Per point, the identity gather (to write φ).
-    let identity: Vec<Gather> = orbit.points.iter().map(|&(fiber, _)| sym.gather(l.fiber_rep(fiber), 0)).collect();
     // The reference images transported to ξ0, one column per point, made
     // when a candidate is first tried.
     let mut transported: Vec<Option<DMatrix<Complex64>>> = vec![None; REFERENCES as usize];
@@ -222,7 +215,7 @@ fn orbit_generators(
             Some(f) => vec![f[layer]],
             None => (0..REFERENCES).collect(),
         };
-        let mut best: Option<(u64, Vec<([usize; 2], DVector<Complex64>)>, f64)> = None;
+        let mut best: Option<(u64, DMatrix<Complex64>, f64)> = None;
         for c in candidates {
             // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
             // project on the layer's basis there, transport back.
@@ -238,7 +231,7 @@ fn orbit_generators(
             for (j, t) in local_transports.iter().enumerate() {
                 t.scatter(y.column(j).as_slice(), &mut psi);
             }
-            let (fibers, worst) = orbit_generator(sym, orbit, &point_gathers, k, &psi);
+            let (fibers, worst) = orbit_generator(d, &rep_gathers, k, &psi, &y);
             let better = best.as_ref().map_or(true, |b| worst > b.2);
             if better {
                 best = Some((c, fibers, worst));
@@ -255,7 +248,7 @@ fn orbit_generators(
                 orbit.rep
             )));
         }
-        out.push((c, fibers.into_iter().zip(&identity).map(|((_, v), g)| (g.clone(), v)).collect()));
+        out.push((c, transports.iter().zip(fibers.column_iter()).map(|(t, v)| (t.clone(), v.into_owned())).collect()));
     }
     Ok(out)
 }
