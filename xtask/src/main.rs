@@ -4,7 +4,7 @@
 //! cargo xtask test               every test: Rust, wasm facade, browser end to end
 //! cargo xtask serve [--port P]   build the browser app and serve web/ on 127.0.0.1
 //! cargo xtask dist               write dist/site/ and the self-contained dist/orbitspan.html
-//! cargo xtask bench [--quick]    benchmark the fit against the FFT floor and the dense method
+//! cargo xtask bench [--quick]    benchmark the fit against the FFT floor, the dense method and the browser
 //! ```
 //!
 //! Plain Rust over `cargo`, `wasm-bindgen`, `node` and Chromium; the browser
