@@ -289,7 +289,8 @@ pub(crate) fn solve_orbit(
             }
         }
         let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
-        (gram(&y) * Complex64::new(1.0 / hsize, 0.0), ops, Some(y))
+        let parts = split(&y);
+        (gram(&parts.0, &parts.1) * Complex64::new(1.0 / hsize, 0.0), ops, Some(parts))
     } else {
         let ops = orbit
             .stabiliser
@@ -343,7 +344,6 @@ pub(crate) fn solve_orbit(
         kept_count += groups.iter().map(|g| g.1.len()).sum::<usize>();
         decompositions.push((eig, groups));
     }
-    let y_parts = y.as_ref().map(split);
     for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
         // One product per (block, layer): its shape does not depend on how
         // many layers are kept, so the generators for L are bit-identical to
@@ -351,7 +351,7 @@ pub(crate) fn solve_orbit(
         for (layer, es) in groups {
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), es.len(), |row, c| eig.eigenvectors[(row, es[c])]);
             let v = product(&b.basis, &coeffs);
-            let u = match &y_parts {
+            let u = match &y {
                 Some((ya, yb)) => product_parts(ya, yb, &v),
                 None => v,
             };
@@ -370,8 +370,11 @@ pub(crate) fn solve_orbit(
     let discard = if y.is_none() && d - kept_count < kept_count {
         let mut columns = Vec::with_capacity(d - kept_count);
         for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
-            let kept: Vec<usize> = groups.iter().flat_map(|g| g.1.iter().copied()).collect();
-            let rest: Vec<usize> = (0..eig.eigenvalues.len()).filter(|e| !kept.contains(e)).collect();
+            let mut kept = vec![false; eig.eigenvalues.len()];
+            for &e in groups.iter().flat_map(|g| &g.1) {
+                kept[e] = true;
+            }
+            let rest: Vec<usize> = (0..kept.len()).filter(|&e| !kept[e]).collect();
             if rest.is_empty() {
                 continue;
             }
@@ -527,14 +530,13 @@ pub(crate) fn pooled_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>]) 
     DMatrix::from_fn(d, d, |r, c| Complex64::new(re[(r, c)], cross[(r, c)] - cross[(c, r)]))
 }
 
-/// The Gram matrix `Yᴴ Y = (AᵀA + BᵀB) + i (AᵀB − (AᵀB)ᵀ)` for `Y = A + iB`.
-pub(crate) fn gram(y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
-    let (a, b) = split(y);
+/// The Gram matrix `Yᴴ Y = (AᵀA + BᵀB) + i (AᵀB − (AᵀB)ᵀ)` of `Y = A + iB`, from `(A, B)`.
+pub(crate) fn gram(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<Complex64> {
     let (at, bt) = (a.transpose(), b.transpose());
-    let mut re = &at * &a;
-    re.gemm(1.0, &bt, &b, 1.0);
-    let cross = &at * &b;
-    let n = y.ncols();
+    let mut re = &at * a;
+    re.gemm(1.0, &bt, b, 1.0);
+    let cross = &at * b;
+    let n = a.ncols();
     DMatrix::from_fn(n, n, |r, c| Complex64::new(re[(r, c)], cross[(r, c)] - cross[(c, r)]))
 }
 
@@ -547,12 +549,8 @@ fn split(m: &DMatrix<Complex64>) -> (DMatrix<f64>, DMatrix<f64>) {
 /// `(A + iB)(C + iD) = (AC − BD) + i (AD + BC)` (the real product is the
 /// blocked, vectorised one).
 pub(crate) fn product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
-    let ((a, b), (c, d)) = (split(x), split(y));
-    let mut re = &a * &c;
-    re.gemm(-1.0, &b, &d, 1.0);
-    let mut im = &a * &d;
-    im.gemm(1.0, &b, &c, 1.0);
-    re.zip_map(&im, Complex64::new)
+    let (a, b) = split(x);
+    product_parts(&a, &b, y)
 }
 
 /// [`product`] with the left factor already split into `(A, B)`.
@@ -578,11 +576,6 @@ pub(crate) fn adjoint_product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMat
 
 /// `Xᴴ Y` through real matrix products (see [`product`]).
 pub(crate) fn adjoint_product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
-    let ((a, b), (c, d)) = (split(x), split(y));
-    let (at, bt) = (a.transpose(), b.transpose());
-    let mut re = &at * &c;
-    re.gemm(1.0, &bt, &d, 1.0);
-    let mut im = &at * &d;
-    im.gemm(-1.0, &bt, &c, 1.0);
-    re.zip_map(&im, Complex64::new)
+    let (a, b) = split(x);
+    adjoint_product_parts(&a, &b, y)
 }

@@ -29,7 +29,7 @@ use crate::prng::SplitMix64;
 use crate::progress::Progress;
 use crate::spectrum::{fft2, ifft2_real_owned};
 use crate::stack::Image;
-use nalgebra::{DMatrix, DVector};
+use nalgebra::DMatrix;
 use num_complex::Complex64;
 
 /// A generator image with its realness check.
@@ -134,11 +134,11 @@ pub(crate) fn parseval_generators(
             wave.len(),
             |k| orbit_generators(sym, &orbits[wave[k]], &solutions[wave[k]], lmax, forced[k].as_deref(), &references),
             |k, result| {
-                let fibers = result?;
-                for (layer, (c, points)) in fibers.into_iter().enumerate() {
+                let share = result?;
+                for (layer, (c, fibers)) in share.layers.into_iter().enumerate() {
                     chosen[layer][wave[k]] = c;
-                    for (gather, v) in points {
-                        gather.scatter(v.as_slice(), &mut phis[layer]);
+                    for (transport, v) in share.transports.iter().zip(fibers.column_iter()) {
+                        transport.scatter(v.as_slice(), &mut phis[layer]);
                     }
                 }
                 done += 1;
@@ -161,11 +161,17 @@ thread_local! {
     static SLOTS: std::cell::RefCell<Vec<usize>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
-/// One orbit's share of every generator: per layer, the reference chosen
-/// and `T_jᴴ φ_l(ξ_j)` at each point `j` with its transport (whose scatter
-/// writes `φ_l(ξ_j)`).
-/// `forced` gives the references to use (the conjugate orbit's choice).
-#[allow(clippy::type_complexity)]
+/// One orbit's share of every generator.
+struct OrbitShare {
+    /// Per point `j`, the transport `T_j`: its scatter writes `φ_l(ξ_j)`.
+    transports: Vec<Gather>,
+    /// Per layer, the reference chosen and `T_jᴴ φ_l(ξ_j)` (column `j`;
+    /// no columns for an empty layer).
+    layers: Vec<(u64, DMatrix<Complex64>)>,
+}
+
+/// [`OrbitShare`] of one orbit; `forced` gives the references to use (the
+/// conjugate orbit's choice).
 fn orbit_generators(
     sym: &Symmetry,
     orbit: &Orbit,
@@ -173,12 +179,13 @@ fn orbit_generators(
     lmax: usize,
     forced: Option<&[u64]>,
     references: &[OnceLock<Vec<Complex64>>],
-) -> Result<Vec<(u64, Vec<(Gather, DVector<Complex64>)>)>> {
+) -> Result<OrbitShare> {
     let l = sym.lattice();
     let [n1, n2] = l.torus();
     let d = l.fiber_len();
+    let empty = || (0, DMatrix::zeros(d, 0));
     if sol.layers.iter().all(|q| q.ncols() == 0) {
-        return Ok((0..lmax).map(|_| (0, Vec::new())).collect());
+        return Ok(OrbitShare { transports: Vec::new(), layers: (0..lmax).map(|_| empty()).collect() });
     }
     // ψ lives in a compact buffer of the orbit's own fibers, so the many
     // gathers per layer read a few hundred kilobytes, not whole spectra.
@@ -208,7 +215,7 @@ fn orbit_generators(
         let q = &sol.layers[layer];
         let k = q.ncols();
         if k == 0 {
-            out.push((0, Vec::new()));
+            out.push(empty());
             continue;
         }
         let candidates: Vec<u64> = match forced {
@@ -248,9 +255,9 @@ fn orbit_generators(
                 orbit.rep
             )));
         }
-        out.push((c, transports.iter().zip(fibers.column_iter()).map(|(t, v)| (t.clone(), v.into_owned())).collect()));
+        out.push((c, fibers));
     }
-    Ok(out)
+    Ok(OrbitShare { transports, layers: out })
 }
 
 /// The `d x (|G| · count)` matrix of fibers at `xi` of `π(γ_g) φ` for every

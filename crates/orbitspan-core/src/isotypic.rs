@@ -103,9 +103,10 @@ fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<V
     let weights: Vec<Complex64> = ops.iter().map(|_| Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0))).collect();
     // Per coordinate orbit S: A_S = Σ_h w_h U_h and Z_S = Σ_h U_hᴴ A_S U_h on S;
     // eigenpairs (value, vector on S) of the Hermitian part of Z_S.
-    let mut pairs: Vec<(f64, Vec<usize>, Vec<Complex64>)> = Vec::with_capacity(n);
+    let orbits = coordinate_orbits(n, ops);
+    let mut pairs: Vec<(f64, usize, Vec<Complex64>)> = Vec::with_capacity(n);
     let mut position = vec![0usize; n];
-    for orbit in coordinate_orbits(n, ops) {
+    for (o, orbit) in orbits.iter().enumerate() {
         let k = orbit.len();
         for (i, &a) in orbit.iter().enumerate() {
             position[a] = i;
@@ -135,7 +136,7 @@ fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<V
         let zh = (&z + z.adjoint()) * Complex64::new(0.5, 0.0);
         let eig = nalgebra::SymmetricEigen::new(zh);
         for e in 0..k {
-            pairs.push((eig.eigenvalues[e], orbit.clone(), eig.eigenvectors.column(e).iter().copied().collect()));
+            pairs.push((eig.eigenvalues[e], o, eig.eigenvectors.column(e).iter().copied().collect()));
         }
     }
     pairs.sort_by(|p, q| p.0.total_cmp(&q.0));
@@ -151,7 +152,7 @@ fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<V
     let eig_vectors = |c: &[usize]| {
         let mut basis = DMatrix::<Complex64>::zeros(n, c.len());
         for (col, &i) in c.iter().enumerate() {
-            for (&r, &v) in pairs[i].1.iter().zip(&pairs[i].2) {
+            for (&r, &v) in orbits[pairs[i].1].iter().zip(&pairs[i].2) {
                 basis[(r, col)] = v;
             }
         }
