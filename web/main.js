@@ -15,7 +15,9 @@ import { createCurve } from './views/curve.js';
 import { createGallery } from './views/gallery.js';
 import { createTopbar } from './views/topbar.js';
 
-const client = new WorkerClient();
+// ?workers=N sets how many workers share a fit (default: one per core).
+const workersParam = Number(new URLSearchParams(location.search).get('workers'));
+const client = new WorkerClient({ workers: workersParam >= 1 ? workersParam : undefined });
 
 const state = {
   files: [], // [{ name, status: 'reading' | 'added' | 'failed', message, images }]
@@ -326,7 +328,8 @@ async function runFit() {
     if (result.lattice) client.remember('restore-lattice', { info: result.lattice });
     client.remember('restore-report', { report: result.report });
     state.busy = null;
-    state.fitStatus = `Fitted ${state.images.length} image${state.images.length === 1 ? '' : 's'} in ${result.seconds.toFixed(2)} s.`;
+    const workers = result.workers > 1 ? ` on ${result.workers} workers` : '';
+    state.fitStatus = `Fitted ${state.images.length} image${state.images.length === 1 ? '' : 's'} in ${result.seconds.toFixed(2)} s${workers}.`;
     cards.stack.open = false;
     cards.symmetry.open = false;
     cards.results.open = true;

@@ -1,9 +1,19 @@
 // The page's side of the worker protocol (documented at the top of worker.js):
 // requests as promises with progress callbacks, and Cancel by terminating the
 // worker and starting a fresh one that is brought back to the same state.
+// With more than one worker, the page also starts helper workers and hands
+// the worker a channel to each: fits spread their orbit tasks over them.
+
+// How many workers a fit may use: the cores the browser reports (at most 8).
+export function defaultWorkerCount() {
+  return Math.max(1, Math.min(8, navigator.hardwareConcurrency || 1));
+}
 
 export class WorkerClient {
-  constructor() {
+  // workers: how many workers share a fit's work, this one included (the
+  // others are helpers that only solve fit tasks; see worker.js).
+  constructor({ workers } = {}) {
+    this.workers = Math.max(1, Math.floor(workers ?? defaultWorkerCount()));
     this.nextId = 1;
     this.pending = new Map();
     // Requests that rebuilt the worker's state, replayed after a restart.
@@ -16,10 +26,36 @@ export class WorkerClient {
     this.worker.onmessage = (event) => this.receive(event.data);
     this.worker.onerror = (event) => {
       event.preventDefault?.();
-      const error = { name: 'InternalError', message: `the worker stopped: ${event.message ?? 'unknown error'}` };
-      for (const { reject } of this.pending.values()) reject(error);
-      this.pending.clear();
+      this.failAll(`the worker stopped: ${event.message ?? 'unknown error'}`);
     };
+    // Helpers talk to the worker over their own channels; the page only
+    // starts and stops them. Their replies to 'serve' carry id 0: ignored.
+    this.helpers = [];
+    const ports = [];
+    for (let i = 1; i < this.workers; i++) {
+      const helper = createWorker();
+      helper.onerror = (event) => {
+        event.preventDefault?.();
+        this.failAll(`a helper worker stopped: ${event.message ?? 'unknown error'}`);
+      };
+      const channel = new MessageChannel();
+      helper.postMessage({ id: 0, op: 'serve', port: channel.port2 }, [channel.port2]);
+      this.helpers.push(helper);
+      ports.push(channel.port1);
+    }
+    if (ports.length) this.worker.postMessage({ id: 0, op: 'helpers', ports }, ports);
+  }
+
+  // Rejects every pending request with an InternalError.
+  failAll(message) {
+    const error = { name: 'InternalError', message };
+    for (const { reject } of this.pending.values()) reject(error);
+    this.pending.clear();
+  }
+
+  stop() {
+    this.worker.terminate();
+    for (const helper of this.helpers) helper.terminate();
   }
 
   receive(message) {
@@ -62,7 +98,7 @@ export class WorkerClient {
   // Stops whatever the worker is doing: every pending request rejects with
   // Cancelled, a new worker starts and gets the remembered state back.
   async cancel() {
-    this.worker.terminate();
+    this.stop();
     for (const { reject } of this.pending.values()) reject({ name: 'Cancelled', message: 'cancelled' });
     this.pending.clear();
     this.start();

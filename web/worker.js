@@ -34,7 +34,10 @@
 //                                                 centre, relative_error }] }, ranked (best first)
 //   fit            settings                     { report, generators: [picture], model, modelBytes, seconds,
 //                                                 lattice: null | { lattice, grid, resampling_error,
-//                                                 image_deviation, cell_deviation, noise_level } }
+//                                                 image_deviation, cell_deviation, noise_level },
+//                                                 workers, solvedBy: null | [tasks solved here, by helper 1, ...],
+//                                                 timing: null | { begin, finish, tasks } seconds: before the
+//                                                 tasks, after them, and solving them summed over workers }
 //   restore-report report                       null (the report of an earlier fit, after a restart)
 //   restore-lattice info                        null (the lattice of an earlier fit's model, after a restart)
 //   choose         count                        { model, modelBytes }
@@ -44,7 +47,10 @@
 //   export         parts: { pictures, arrays,   { files: [{ name, bytes }] }
 //                  report }
 //   legend         width                        picture of the residual colour scale, −1 … 1
-//   memory         -                            { bytes } the wasm memory's size (it only grows: the peak so far)
+//   memory         -                            { bytes, helpers: [bytes] } the wasm memory's size here and in
+//                                                each helper (it only grows: the peak so far)
+//   helpers        ports: [MessagePort]         { helpers } (sent by the page at start: channels to helpers)
+//   serve          port: MessagePort            null (sent by the page at start: become a helper)
 // where images = [{ label, height, width }] is the whole stack after the
 // change and model = { settings, height, width, generators, grid }; grid is
 // null, or { samples, cells } when the model is on a measured lattice's grid
@@ -53,13 +59,25 @@
 //
 // Cancel: the page terminates this worker and starts a new one, then sends
 // the requests that rebuild the stack and the model (web/worker-client.js).
+//
+// Helpers. The same script serves as a helper worker: after 'serve' it only
+// answers on its port   { id, op: 'solve', bytes } -> { id, bytes, seconds }   (a
+// fit task's answer, wasm FitTaskSolver) and { id, op: 'memory' } -> { id, bytes },
+// or { id, error }. With helpers, a fit begins here (transforms, band,
+// tasks cut: Session.fitBegin), hands tasks out one by one (two in flight
+// per helper, so none waits while this worker computes), solves tasks here
+// too, and finishes here. Every task's answer is the same wherever it is
+// solved, so the fit is bit-identical to the fit in one worker.
 
-import init, { Session, residualLegend } from './pkg/orbitspan_wasm.js';
+import init, { Session, FitTaskSolver, residualLegend } from './pkg/orbitspan_wasm.js';
 
 let wasm = null;
 const ready = startWasm();
 let session = null;
 let queue = Promise.resolve();
+// Channels to helper workers (HelperLink), and this worker's own task solver.
+let helpers = [];
+let solver = null;
 
 self.onmessage = (event) => {
   queue = queue.then(() => handle(event.data));
@@ -81,7 +99,7 @@ async function handle(message) {
   const { id, op } = message;
   try {
     await ready;
-    const result = run(op, message, progressReporter(id));
+    const result = await run(op, message, progressReporter(id));
     self.postMessage({ id, result }, transferables(result));
   } catch (error) {
     self.postMessage({ id, error: { name: error?.name ?? 'InternalError', message: String(error?.message ?? error) } });
@@ -103,7 +121,7 @@ function progressReporter(id) {
   };
 }
 
-function run(op, m, progress) {
+async function run(op, m, progress) {
   switch (op) {
     case 'add-files': {
       const added = [];
@@ -143,10 +161,12 @@ function run(op, m, progress) {
       return session.survey(m.options, progress);
     case 'fit': {
       const start = performance.now();
-      const report = session.fit(m.settings, progress);
+      const { report, solvedBy, timing } = helpers.length
+        ? await fitSpread(m.settings, progress)
+        : { report: session.fit(m.settings, progress), solvedBy: null, timing: null };
       const seconds = (performance.now() - start) / 1000;
       return {
-        report, seconds,
+        report, seconds, workers: helpers.length + 1, solvedBy, timing,
         generators: session.generatorPictures(), model: session.modelInfo(), modelBytes: session.modelBytes(),
         lattice: session.latticeFit(),
       };
@@ -173,12 +193,133 @@ function run(op, m, progress) {
     case 'export':
       return { files: exportFiles(m.parts) };
     case 'memory':
-      return { bytes: wasm.memory.buffer.byteLength };
+      return {
+        bytes: wasm.memory.buffer.byteLength,
+        helpers: await Promise.all(helpers.map(async (h) => (await h.request('memory')).bytes)),
+      };
+    case 'helpers':
+      helpers = m.ports.map((port) => new HelperLink(port));
+      return { helpers: helpers.length };
+    case 'serve':
+      serve(m.port);
+      return null;
     case 'legend':
       return residualLegend(m.width);
     default:
       throw new Error(`unknown request '${op}'`);
   }
+}
+
+// A fit spread over this worker and the helpers (see the top of this file).
+async function fitSpread(settings, progress) {
+  const started = performance.now();
+  const tasks = session.fitBegin(settings, progress);
+  const begun = performance.now();
+  let taskSeconds = 0; // time spent solving tasks, summed over the workers
+  solver ??= new FitTaskSolver();
+  let next = 0;
+  let done = 0;
+  let failed = false;
+  // Tasks solved here (index 0) and by each helper.
+  const solvedBy = new Array(helpers.length + 1).fill(0);
+  const take = () => (failed || next >= tasks ? -1 : next++);
+  const accept = (answer, by) => {
+    session.fitAccept(answer);
+    solvedBy[by]++;
+    done++;
+    progress('fitting frequencies', done / tasks);
+  };
+  const viaHelper = async (link, by) => {
+    for (let k = take(); k >= 0; k = take()) {
+      const { bytes, seconds } = await link.request('solve', session.fitTask(k));
+      if (failed) return;
+      taskSeconds += seconds;
+      accept(bytes, by);
+    }
+  };
+  const here = async () => {
+    for (let k = take(); k >= 0; k = take()) {
+      const task = session.fitTask(k);
+      const start = performance.now();
+      const answer = solver.solve(task);
+      taskSeconds += (performance.now() - start) / 1000;
+      accept(answer, 0);
+      await nextTurn(); // let the helpers' answers in
+    }
+  };
+  progress('fitting frequencies', 0);
+  try {
+    await Promise.all([...helpers.flatMap((link, i) => [viaHelper(link, i + 1), viaHelper(link, i + 1)]), here()]);
+  } catch (error) {
+    failed = true;
+    session.fitAbort();
+    throw error;
+  }
+  const solved = performance.now();
+  const report = session.fitFinish(progress);
+  const timing = { begin: (begun - started) / 1000, finish: (performance.now() - solved) / 1000, tasks: taskSeconds };
+  return { report, solvedBy, timing };
+}
+
+// Resolves after the messages already queued for this worker (a macrotask
+// through a MessageChannel: timers would be clamped).
+const turn = new MessageChannel();
+const turnWaiters = [];
+turn.port1.onmessage = () => turnWaiters.shift()?.();
+function nextTurn() {
+  return new Promise((resolve) => {
+    turnWaiters.push(resolve);
+    turn.port2.postMessage(null);
+  });
+}
+
+// This worker's end of a channel to a helper: requests as promises.
+class HelperLink {
+  constructor(port) {
+    this.port = port;
+    this.nextId = 1;
+    this.pending = new Map();
+    port.onmessage = ({ data }) => {
+      const waiting = this.pending.get(data.id);
+      if (!waiting) return;
+      this.pending.delete(data.id);
+      if (data.error) {
+        const error = new Error(data.error.message);
+        error.name = data.error.name;
+        waiting.reject(error);
+      } else {
+        waiting.resolve(data);
+      }
+    };
+  }
+
+  request(op, bytes = null) {
+    const id = this.nextId++;
+    return new Promise((resolve, reject) => {
+      this.pending.set(id, { resolve, reject });
+      this.port.postMessage({ id, op, bytes }, bytes ? [bytes.buffer] : []);
+    });
+  }
+}
+
+// A helper: answers fit tasks on the port from the worker that hands them out.
+function serve(port) {
+  const helperSolver = new FitTaskSolver();
+  port.onmessage = ({ data }) => {
+    try {
+      if (data.op === 'solve') {
+        const start = performance.now();
+        const answer = helperSolver.solve(data.bytes);
+        port.postMessage({ id: data.id, bytes: answer, seconds: (performance.now() - start) / 1000 }, [answer.buffer]);
+      } else if (data.op === 'memory') {
+        port.postMessage({ id: data.id, bytes: wasm.memory.buffer.byteLength });
+      } else {
+        throw new Error(`unknown helper request '${data.op}'`);
+      }
+    } catch (error) {
+      port.postMessage({ id: data.id, error: { name: error?.name ?? 'InternalError', message: String(error?.message ?? error) } });
+    }
+  };
 }
 
 // The files of an export, named as the command line names them.

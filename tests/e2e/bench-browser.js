@@ -1,11 +1,15 @@
 // In-browser timing for `cargo xtask bench` (issue 5). For every workload
 // that `orbitspan-bench --write-files DIR` wrote (DIR/<name>/workload.json
 // and its images), a fresh headless Chromium fits the files through the
-// app's worker (web/worker.js, one worker, wasm), timing each fit inside the
-// page twice over: the worker's own measure of the fit request and the time
-// from posting the request to its result. The worker's wasm memory size
-// after the fits is its peak. Writes DIR/browser.json for orbitspan-bench
-// --browser DIR, which times the native fit of the same decoded files.
+// app's worker (web/worker.js, wasm), timing each fit inside the page twice
+// over: the worker's own measure of the fit request and the time from
+// posting the request to its result. Two clients in the page, fits
+// interleaved: one worker alone, and one worker per core (the page's
+// default: the fit's tasks spread over helper workers), with the spread
+// fit's own breakdown (before the tasks, after them, the tasks' work summed
+// over workers). The workers' wasm memory sizes after the fits are their
+// peaks. Writes DIR/browser.json for orbitspan-bench --browser DIR, which
+// times the native fit of the same decoded files.
 //
 //   node tests/e2e/bench-browser.js DIR [--reps N]
 //
@@ -40,10 +44,13 @@ for (const name of readdirSync(dir).sort()) {
     });
     // A same-origin document that runs nothing of its own: the worker client
     // module, shown as text.
+    await page.route('**/favicon.ico', (route) => route.fulfill({ status: 204 }));
     await page.goto(new URL('worker-client.js', url).href);
     const outcome = await page.evaluate(async ({ description, reps }) => {
-      const { WorkerClient } = await import('./worker-client.js');
-      const client = new WorkerClient();
+      const { WorkerClient, defaultWorkerCount } = await import('./worker-client.js');
+      const client = new WorkerClient({ workers: 1 });
+      const workers = defaultWorkerCount();
+      const spread = workers > 1 ? new WorkerClient({ workers }) : null;
       const files = [];
       for (const file of description.files) {
         const response = await fetch(`bench-data/${encodeURIComponent(file)}`);
@@ -51,24 +58,41 @@ for (const name of readdirSync(dir).sort()) {
       }
       const added = await client.request('add-files', { files, tile: description.tile });
       if (added.failed.length) return { error: JSON.stringify(added.failed) };
+      if (spread) await spread.request('add-files', { files, tile: description.tile });
       const worker = [];
       const pageSeconds = [];
+      const spreadSeconds = [];
+      const spreadTiming = [];
       for (let i = 0; i < reps; i++) {
         const start = performance.now();
         const result = await client.request('fit', { settings: description.settings });
         pageSeconds.push((performance.now() - start) / 1000);
         worker.push(result.seconds);
+        if (spread) {
+          const wide = await spread.request('fit', { settings: description.settings });
+          if (JSON.stringify(wide.report) !== JSON.stringify(result.report)) return { error: 'the spread fit differs from the fit in one worker' };
+          spreadSeconds.push(wide.seconds);
+          spreadTiming.push(wide.timing);
+        }
       }
       const memory = await client.request('memory');
-      return { images: added.images.length, worker, pageSeconds, memory: memory.bytes };
+      const spreadMemory = spread ? await spread.request('memory') : null;
+      return {
+        images: added.images.length, worker, pageSeconds, memory: memory.bytes,
+        workers, spreadSeconds, spreadTiming,
+        spreadMemory: spreadMemory ? spreadMemory.bytes + spreadMemory.helpers.reduce((a, b) => a + b, 0) : 0,
+      };
     }, { description, reps });
-    if (outcome.error) throw new Error(`${name}: files refused: ${outcome.error}`);
+    if (outcome.error) throw new Error(`${name}: ${outcome.error}`);
     if (browser.errors.length) throw new Error(`${name}: page errors: ${browser.errors.join('; ')}`);
     console.error(`browser ${name}: ${outcome.images} images, worker ${outcome.worker.map((s) => s.toFixed(3)).join(' ')} s, `
-      + `page ${outcome.pageSeconds.map((s) => s.toFixed(3)).join(' ')} s, wasm memory ${(outcome.memory / 1e6).toFixed(1)} MB`);
+      + `page ${outcome.pageSeconds.map((s) => s.toFixed(3)).join(' ')} s, wasm memory ${(outcome.memory / 1e6).toFixed(1)} MB; `
+      + `${outcome.workers} workers ${outcome.spreadSeconds.map((s) => s.toFixed(3)).join(' ')} s`);
     results.push({
       name, images: outcome.images, worker_seconds: outcome.worker, page_seconds: outcome.pageSeconds,
       wasm_memory_bytes: outcome.memory,
+      workers: outcome.workers, spread_seconds: outcome.spreadSeconds, spread_timing: outcome.spreadTiming,
+      spread_memory_bytes: outcome.spreadMemory,
     });
   } finally {
     await browser.close();

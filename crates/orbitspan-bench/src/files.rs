@@ -45,6 +45,28 @@ pub struct BrowserTiming {
     pub page_seconds: Vec<f64>,
     /// The worker's wasm memory after the fits (it only grows: a peak).
     pub wasm_memory_bytes: usize,
+    /// Workers of the spread fit (one per core; 1: not measured).
+    #[serde(default)]
+    pub workers: usize,
+    /// Seconds of the spread fit as its worker measures it.
+    #[serde(default)]
+    pub spread_seconds: Vec<f64>,
+    /// Per spread fit, its breakdown.
+    #[serde(default)]
+    pub spread_timing: Vec<SpreadTiming>,
+    /// The spread fit's wasm memory, all its workers together.
+    #[serde(default)]
+    pub spread_memory_bytes: usize,
+}
+
+/// Where a spread fit's time goes (seconds): before the tasks (transforms,
+/// band, cutting), after them (sums, generator images), and the tasks'
+/// work summed over the workers.
+#[derive(Deserialize, Serialize, Clone, Copy)]
+pub struct SpreadTiming {
+    pub begin: f64,
+    pub finish: f64,
+    pub tasks: f64,
 }
 
 fn to_png16(img: &Image) -> image::ImageBuffer<image::Luma<u16>, Vec<u16>> {

@@ -122,6 +122,26 @@ struct BrowserResult {
     wasm_memory_bytes: usize,
     stack_f32_bytes: usize,
     wasm_memory_over_stack_f32: f64,
+    /// The fit spread over one worker per core, when there is more than one.
+    spread: Option<SpreadResult>,
+}
+
+/// The fit spread over several workers against one worker, in the same page.
+#[derive(Serialize)]
+struct SpreadResult {
+    workers: usize,
+    seconds: f64,
+    /// One worker's time over the spread fit's.
+    speed_up: f64,
+    /// Medians of the spread fit's breakdown.
+    begin_seconds: f64,
+    finish_seconds: f64,
+    task_work_seconds: f64,
+    /// `t(1 worker) / (begin + finish + task work / 8)`: an estimate for
+    /// 8 cores, if the tasks divide evenly and nothing else grows.
+    expected_speed_up_8: f64,
+    memory_bytes: usize,
+    memory_over_stack_f32: f64,
 }
 
 fn median(mut v: Vec<f64>) -> f64 {
@@ -284,6 +304,23 @@ fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> 
         let worker = median(t.worker_seconds.clone());
         let page = median(t.page_seconds.clone());
         let stack_f32 = stack.len() * stack.height() * stack.width() * 4;
+        let spread = (t.workers > 1 && !t.spread_seconds.is_empty()).then(|| {
+            let seconds = median(t.spread_seconds.clone());
+            let begin = median(t.spread_timing.iter().map(|s| s.begin).collect());
+            let finish = median(t.spread_timing.iter().map(|s| s.finish).collect());
+            let work = median(t.spread_timing.iter().map(|s| s.tasks).collect());
+            SpreadResult {
+                workers: t.workers,
+                seconds,
+                speed_up: worker / seconds,
+                begin_seconds: begin,
+                finish_seconds: finish,
+                task_work_seconds: work,
+                expected_speed_up_8: worker / (begin + finish + work / 8.0),
+                memory_bytes: t.spread_memory_bytes,
+                memory_over_stack_f32: t.spread_memory_bytes as f64 / stack_f32 as f64,
+            }
+        });
         eprintln!("browser {}: worker {worker:.3} s, page {page:.3} s, native {native:.3} s, native one thread {native_one:.3} s", t.name);
         out.push(BrowserResult {
             name: t.name.clone(),
@@ -297,6 +334,7 @@ fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> 
             wasm_memory_bytes: t.wasm_memory_bytes,
             stack_f32_bytes: stack_f32,
             wasm_memory_over_stack_f32: t.wasm_memory_bytes as f64 / stack_f32 as f64,
+            spread,
         });
     }
     Ok(out)
@@ -360,6 +398,28 @@ fn table(r: &Results) -> String {
                 b.wasm_memory_over_stack_f32,
                 mb(b.wasm_memory_bytes)
             ));
+        }
+        let spread: Vec<(&BrowserResult, &SpreadResult)> = r.browser.iter().filter_map(|b| Some((b, b.spread.as_ref()?))).collect();
+        if spread.is_empty() {
+            s.push_str("\nFit spread over workers: not measured (the browser reports one core).\n");
+        } else {
+            s.push_str("\n| spread over workers (same page) | workers | one worker / spread (speed-up) | expected speed-up on 8 cores (estimate) | fit, spread | before tasks | after tasks | tasks' work, all workers | wasm memory, all workers / stack f32 |\n");
+            s.push_str("|---|---|---|---|---|---|---|---|---|\n");
+            for (b, p) in spread {
+                s.push_str(&format!(
+                    "| {} | {} | {:.2} | {:.2} | {:.3} s | {:.3} s | {:.3} s | {:.3} s | {:.2} |\n",
+                    b.name,
+                    p.workers,
+                    p.speed_up,
+                    p.expected_speed_up_8,
+                    p.seconds,
+                    p.begin_seconds,
+                    p.finish_seconds,
+                    p.task_work_seconds,
+                    p.memory_over_stack_f32
+                ));
+            }
+            s.push_str("\nExpected on 8 cores: one worker's time / (before + after + tasks' work / 8), assuming the tasks divide evenly over 8 cores and nothing else grows (an estimate, not a measurement).\n");
         }
     }
     s

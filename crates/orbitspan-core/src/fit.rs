@@ -99,115 +99,271 @@ pub fn fit(stack: &Stack, settings: &FitSettings, progress: &mut dyn Progress) -
 }
 
 /// [`fit`] with a forced choice of covariance or Gram matrices.
+///
+/// The work per orbit pair ([`orbit_pairs`]) runs on several threads; each
+/// pair's result does not depend on the others or on the thread count. The
+/// same pairs can run in other processes through [`crate::tasks`].
 pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<Fit> {
-    let (h, w) = (stack.height(), stack.width());
-    let sym = validate(h, w, settings)?;
-    let lmax = settings.generators;
-    let pixels = (h * w) as f64;
-
-    // Spectra of the images, moved so that `origin` sits at pixel (0, 0).
-    let mut spectra = Vec::with_capacity(stack.len());
-    for (i, img) in stack.images().iter().enumerate() {
-        check(progress, "transforming images", i as f64 / stack.len() as f64)?;
-        spectra.push(fft2(&to_group_frame(img, settings.origin)));
-    }
-
-    // Band limit: E(F,S) = E(P_Ω F, S) + ||F − P_Ω F||².
-    let mut outside_per_image = vec![0.0; stack.len()];
-    let band: Option<Band> = match &settings.band {
-        Some(spec) => {
-            let b = band::select(&sym, spec, &spectra, settings.group.symbol.is_hexagonal())?;
-            for (s, out) in spectra.iter_mut().zip(outside_per_image.iter_mut()) {
-                *out = b.restrict(s);
-            }
-            Some(b)
-        }
-        None => None,
-    };
-
-    // One decomposition per orbit, on several threads; each orbit's result
-    // does not depend on the others or on the thread count.
-    let orbits = sym.orbits();
-    let mut slots: Vec<Option<OrbitSolution>> = (0..orbits.len()).map(|_| None).collect();
+    let prepared = Prepared::new(stack, settings, path, progress)?;
+    let pairs = orbit_pairs(&prepared.sym, &prepared.orbits);
+    let references = frame::References::new(prepared.sym.lattice().torus());
+    let fibers = Fibers::Full(&prepared.spectra);
+    let mut results: Vec<Option<OrbitResult>> = (0..prepared.orbits.len()).map(|_| None).collect();
     let mut done = 0;
     check(progress, "fitting frequencies", 0.0)?;
     for_each_parallel(
-        orbits.len(),
-        |k| solve_orbit(&sym, &orbits[k], &spectra, lmax, path),
-        |k, solution| {
-            slots[k] = Some(solution?);
+        pairs.len(),
+        |k| solve_pair(&prepared.sym, &prepared.orbits, &pairs[k], &fibers, prepared.lmax, path, &references),
+        |_, pair| {
+            for (o, result) in pair? {
+                results[o] = Some(result);
+            }
             done += 1;
-            check(progress, "fitting frequencies", done as f64 / orbits.len() as f64)
+            check(progress, "fitting frequencies", done as f64 / pairs.len() as f64)
         },
     )?;
-    drop(spectra);
-    let solutions: Vec<OrbitSolution> = slots.into_iter().map(|s| s.expect("every orbit solved")).collect();
+    prepared.finish(results, progress)
+}
 
-    let outside: f64 = outside_per_image.iter().sum();
-    let total_energy = stack.energy();
-    let mut curve = Vec::with_capacity(lmax);
-    for l in 1..=lmax {
-        let discarded: f64 = solutions.iter().map(|s| s.tail + s.layer_energy[l..].iter().sum::<f64>()).sum();
-        let error = outside + discarded / pixels;
-        curve.push(CurvePoint { generators: l, error, relative_error: ratio(error, total_energy) });
-    }
+/// A fit after the transforms: the symmetry, the orbits, the spectra every
+/// orbit reads, and what the report needs of the stack.
+pub(crate) struct Prepared {
+    pub settings: FitSettings,
+    pub path: FiberPath,
+    pub sym: Symmetry,
+    pub orbits: Vec<Orbit>,
+    pub lmax: usize,
+    /// Spectra of the images in the group frame (restricted to the band).
+    pub spectra: Vec<Vec<Complex64>>,
+    /// Per image, `||f_i − P_Ω f_i||²` (zero without a band).
+    pub outside_per_image: Vec<f64>,
+    pub band: Option<Band>,
+    pub height: usize,
+    pub width: usize,
+    pub labels: Vec<String>,
+    pub energies: Vec<f64>,
+    pub total_energy: f64,
+}
 
-    let generators = frame::parseval_generators(&sym, &orbits, &solutions, lmax, progress)?;
-    let layer_dims: Vec<usize> = (0..lmax)
-        .map(|l| orbits.iter().zip(&solutions).map(|(o, s)| o.points.len() * s.layers[l].ncols()).sum())
-        .collect();
-    let generator_images: Vec<Image> = generators
-        .iter()
-        .map(|g| from_group_frame(&g.image, settings.origin))
-        .collect();
-    let model = Model::new(settings.clone(), h, w, generator_images)?;
-    // Per-image errors ||f_i − P_V f_i||² from the orbit solutions (the
-    // model's frame projection, `Model::evaluate`, is the slow reference).
-    let images: Vec<ImageError> = stack
-        .labels()
-        .iter()
-        .zip(stack.images())
-        .enumerate()
-        .map(|(i, (label, img))| {
-            let energy = img.energy();
-            let error = outside_per_image[i] + solutions.iter().map(|s| s.image_discarded[i]).sum::<f64>() / pixels;
-            ImageError { file: label.clone(), energy, error, relative_error: ratio(error, energy) }
+impl Prepared {
+    /// Validates, transforms every image (moved so that `origin` sits at
+    /// pixel (0, 0)) and applies the band limit:
+    /// `E(F,S) = E(P_Ω F, S) + ||F − P_Ω F||²`.
+    pub fn new(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<Prepared> {
+        let (h, w) = (stack.height(), stack.width());
+        let sym = validate(h, w, settings)?;
+        let mut spectra = Vec::with_capacity(stack.len());
+        for (i, img) in stack.images().iter().enumerate() {
+            check(progress, "transforming images", i as f64 / stack.len() as f64)?;
+            spectra.push(fft2(&to_group_frame(img, settings.origin)));
+        }
+        let mut outside_per_image = vec![0.0; stack.len()];
+        let band: Option<Band> = match &settings.band {
+            Some(spec) => {
+                let b = band::select(&sym, spec, &spectra, settings.group.symbol.is_hexagonal())?;
+                for (s, out) in spectra.iter_mut().zip(outside_per_image.iter_mut()) {
+                    *out = b.restrict(s);
+                }
+                Some(b)
+            }
+            None => None,
+        };
+        Ok(Prepared {
+            settings: settings.clone(),
+            path,
+            orbits: sym.orbits(),
+            sym,
+            lmax: settings.generators,
+            spectra,
+            outside_per_image,
+            band,
+            height: h,
+            width: w,
+            labels: stack.labels().to_vec(),
+            energies: stack.images().iter().map(Image::energy).collect(),
+            total_energy: stack.energy(),
         })
-        .collect();
-
-    let mut infos = Vec::with_capacity(lmax);
-    for l in 0..lmax {
-        let before = if l == 0 { total_energy } else { curve[l - 1].error };
-        let captured = (before - curve[l].error).max(0.0);
-        infos.push(GeneratorInfo {
-            index: l + 1,
-            norm_squared: generators[l].image.energy(),
-            captured_energy: captured,
-            captured_share: ratio(captured, total_energy),
-            layer_dimension: layer_dims[l],
-            imaginary_part: generators[l].imaginary_part,
-        });
     }
-    let band_report = band.as_ref().map(|b| BandReport {
-        frequencies: b.len(),
-        outside_energy: outside,
-        inside_error: curve[lmax - 1].error - outside,
-    });
-    let report = Report {
-        format: "orbitspan-report".into(),
-        version: 1,
-        settings: settings.clone(),
-        height: h,
-        width: w,
-        point_group_order: sym.order(),
-        cell_pixels: sym.lattice().fiber_len(),
-        total_energy,
-        error_curve: curve,
-        images,
-        band: band_report,
-        generators: infos,
-    };
-    Ok(Fit { report, model, band })
+
+    /// The curve, the generators, the per-image errors and the report from
+    /// every orbit's result (indexed by orbit). Sums run in orbit order, so
+    /// the result does not depend on where or in which order orbits were
+    /// solved.
+    pub fn finish(mut self, results: Vec<Option<OrbitResult>>, progress: &mut dyn Progress) -> Result<Fit> {
+        self.spectra = Vec::new();
+        let missing = results.iter().filter(|r| r.is_none()).count();
+        if missing > 0 {
+            return Err(Error::Internal(format!("{missing} of {} frequency orbits have no result", results.len())));
+        }
+        let results: Vec<OrbitResult> = results.into_iter().flatten().collect();
+        let (h, w, lmax) = (self.height, self.width, self.lmax);
+        let pixels = (h * w) as f64;
+        let outside: f64 = self.outside_per_image.iter().sum();
+        let total_energy = self.total_energy;
+        let mut curve = Vec::with_capacity(lmax);
+        for l in 1..=lmax {
+            let discarded: f64 = results.iter().map(|s| s.tail + s.layer_energy[l..].iter().sum::<f64>()).sum();
+            let error = outside + discarded / pixels;
+            curve.push(CurvePoint { generators: l, error, relative_error: ratio(error, total_energy) });
+        }
+        check(progress, "building generators", 0.0)?;
+        let generators = frame::assemble(&self.sym, &self.orbits, &results, lmax);
+        check(progress, "building generators", 1.0)?;
+        let layer_dims: Vec<usize> = (0..lmax)
+            .map(|l| self.orbits.iter().zip(&results).map(|(o, s)| o.points.len() * s.layer_dims[l]).sum())
+            .collect();
+        let generator_images: Vec<Image> = generators
+            .iter()
+            .map(|g| from_group_frame(&g.image, self.settings.origin))
+            .collect();
+        let model = Model::new(self.settings.clone(), h, w, generator_images)?;
+        // Per-image errors ||f_i − P_V f_i||² from the orbit results (the
+        // model's frame projection, `Model::evaluate`, is the slow reference).
+        let images: Vec<ImageError> = self
+            .labels
+            .iter()
+            .zip(&self.energies)
+            .enumerate()
+            .map(|(i, (label, &energy))| {
+                let error = self.outside_per_image[i] + results.iter().map(|s| s.image_discarded[i]).sum::<f64>() / pixels;
+                ImageError { file: label.clone(), energy, error, relative_error: ratio(error, energy) }
+            })
+            .collect();
+
+        let mut infos = Vec::with_capacity(lmax);
+        for l in 0..lmax {
+            let before = if l == 0 { total_energy } else { curve[l - 1].error };
+            let captured = (before - curve[l].error).max(0.0);
+            infos.push(GeneratorInfo {
+                index: l + 1,
+                norm_squared: generators[l].image.energy(),
+                captured_energy: captured,
+                captured_share: ratio(captured, total_energy),
+                layer_dimension: layer_dims[l],
+                imaginary_part: generators[l].imaginary_part,
+            });
+        }
+        let band_report = self.band.as_ref().map(|b| BandReport {
+            frequencies: b.len(),
+            outside_energy: outside,
+            inside_error: curve[lmax - 1].error - outside,
+        });
+        let report = Report {
+            format: "orbitspan-report".into(),
+            version: 1,
+            settings: self.settings.clone(),
+            height: h,
+            width: w,
+            point_group_order: self.sym.order(),
+            cell_pixels: self.sym.lattice().fiber_len(),
+            total_energy,
+            error_curve: curve,
+            images,
+            band: band_report,
+            generators: infos,
+        };
+        Ok(Fit { report, model, band: self.band })
+    }
+}
+
+/// The orbits in the groups that are solved together: each orbit `O` with
+/// its conjugate `−O` (the orbit holding `−ξ0`) when that is another orbit,
+/// `O` first (the smaller index). `−O` reuses the reference images chosen
+/// for `O`, so the generators come out real (see [`crate::frame`]).
+pub(crate) fn orbit_pairs(sym: &Symmetry, orbits: &[Orbit]) -> Vec<Vec<usize>> {
+    let l = sym.lattice();
+    let mut orbit_of_fiber = vec![0; l.fiber_count()];
+    for (o, orbit) in orbits.iter().enumerate() {
+        for &(f, _) in &orbit.points {
+            orbit_of_fiber[f] = o;
+        }
+    }
+    let mut pairs = Vec::new();
+    for (o, orbit) in orbits.iter().enumerate() {
+        let c = orbit_of_fiber[l.fiber_of(l.neg(orbit.rep))];
+        if c == o {
+            pairs.push(vec![o]);
+        } else if c > o {
+            pairs.push(vec![o, c]);
+        }
+    }
+    pairs
+}
+
+/// One orbit's share of the fit: what the curve, the per-image errors and
+/// the generators need of it (its layer bases are dropped once its share
+/// of the generators is made).
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) struct OrbitResult {
+    /// Captured energy per layer (spectrum units).
+    pub layer_energy: Vec<f64>,
+    /// Energy beyond the last layer.
+    pub tail: f64,
+    /// Per image, the energy its fibers keep outside all layers.
+    pub image_discarded: Vec<f64>,
+    /// Per layer, its dimension at `ξ0` (columns of its basis).
+    pub layer_dims: Vec<usize>,
+    /// Per layer, the reference image chosen and `T_jᴴ φ_l(ξ_j)` for every
+    /// point `j` (columns; none for an empty layer).
+    pub generator: Vec<(u64, DMatrix<Complex64>)>,
+}
+
+/// Solves the orbits of one pair (see [`orbit_pairs`]): decomposition, then
+/// each orbit's share of the generators, the conjugate with the first
+/// orbit's choice of reference images.
+pub(crate) fn solve_pair(
+    sym: &Symmetry,
+    orbits: &[Orbit],
+    pair: &[usize],
+    fibers: &Fibers,
+    lmax: usize,
+    path: FiberPath,
+    references: &frame::References,
+) -> Result<Vec<(usize, OrbitResult)>> {
+    let mut out: Vec<(usize, OrbitResult)> = Vec::with_capacity(pair.len());
+    for &o in pair {
+        let orbit = &orbits[o];
+        let solution = solve_orbit(sym, orbit, fibers, lmax, path)?;
+        let forced: Option<Vec<u64>> = out.first().map(|(_, first)| first.generator.iter().map(|g| g.0).collect());
+        let generator = frame::orbit_generators(sym, orbit, &solution, lmax, forced.as_deref(), references)?;
+        out.push((
+            o,
+            OrbitResult {
+                layer_dims: solution.layers.iter().map(|q| q.ncols()).collect(),
+                layer_energy: solution.layer_energy,
+                tail: solution.tail,
+                image_discarded: solution.image_discarded,
+                generator,
+            },
+        ));
+    }
+    Ok(out)
+}
+
+/// Where an orbit's fibers are read: whole spectra, or compact buffers that
+/// hold only some fibers (fiber `f` at slot `slot[f]`, see
+/// [`Gather::localised`]), one buffer per image.
+pub(crate) enum Fibers<'a> {
+    Full(&'a [Vec<Complex64>]),
+    Local { buffers: &'a [Vec<Complex64>], slot: &'a [usize] },
+}
+
+impl Fibers<'_> {
+    /// One buffer per image.
+    fn data(&self) -> &[Vec<Complex64>] {
+        match self {
+            Fibers::Full(s) => s,
+            Fibers::Local { buffers, .. } => buffers,
+        }
+    }
+    /// [`Symmetry::gather`] reading from [`Fibers::data`].
+    fn gather(&self, sym: &Symmetry, xi: [usize; 2], op: usize) -> Gather {
+        let g = sym.gather(xi, op);
+        match self {
+            Fibers::Full(_) => g,
+            Fibers::Local { slot, .. } => g.localised(sym.lattice(), slot),
+        }
+    }
 }
 
 pub(crate) fn ratio(a: f64, b: f64) -> f64 {
@@ -265,10 +421,11 @@ fn gram_unitary(sym: &Symmetry, xi0: [usize; 2], h: usize, images: usize) -> Mon
 pub(crate) fn solve_orbit(
     sym: &Symmetry,
     orbit: &Orbit,
-    spectra: &[Vec<Complex64>],
+    fibers: &Fibers,
     lmax: usize,
     path: FiberPath,
 ) -> Result<OrbitSolution> {
+    let spectra = fibers.data();
     let gcount = sym.order();
     let m = spectra.len();
     let d = sym.lattice().fiber_len();
@@ -279,9 +436,9 @@ pub(crate) fn solve_orbit(
         FiberPath::Covariance => false,
         FiberPath::Gram => true,
     };
-    let point_gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
+    let point_gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| fibers.gather(sym, orbit.rep, op)).collect();
     let (x, ops, y) = if use_gram {
-        let gathers: Vec<Gather> = (0..gcount).map(|g| sym.gather(orbit.rep, g)).collect();
+        let gathers: Vec<Gather> = (0..gcount).map(|g| fibers.gather(sym, orbit.rep, g)).collect();
         let mut y = DMatrix::<Complex64>::zeros(d, gcount * m);
         for (g, gather) in gathers.iter().enumerate() {
             for (i, s) in spectra.iter().enumerate() {

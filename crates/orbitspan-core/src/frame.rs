@@ -24,9 +24,8 @@
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use std::sync::OnceLock;
-use crate::fit::{adjoint_product, check, product, OrbitSolution};
+use crate::fit::{adjoint_product, product, OrbitResult, OrbitSolution};
 use crate::prng::SplitMix64;
-use crate::progress::Progress;
 use crate::spectrum::{fft2, ifft2_real_owned};
 use crate::stack::Image;
 use nalgebra::DMatrix;
@@ -93,66 +92,49 @@ fn narrow_gram(w: &DMatrix<Complex64>) -> DMatrix<Complex64> {
     out
 }
 
-/// The Parseval generators `φ_1..φ_L` in the group frame (origin at (0,0)).
-///
-/// Per orbit the reference image is the first of [`REFERENCES`] fixed ones
-/// whose conditioning reaches [`GOOD_CONDITIONING`] (else the best); the
-/// conjugate orbit `−O` reuses the choice made for `O`, so `ψ` and `φ` are real.
-pub(crate) fn parseval_generators(
-    sym: &Symmetry,
-    orbits: &[Orbit],
-    solutions: &[OrbitSolution],
-    lmax: usize,
-    progress: &mut dyn Progress,
-) -> Result<Vec<Generator>> {
-    let l = sym.lattice();
-    let [n1, n2] = l.torus();
-    // Reference spectra, each made when first needed (usually only the first).
-    let references: Vec<OnceLock<Vec<Complex64>>> = (0..REFERENCES).map(|_| OnceLock::new()).collect();
-    // conjugate[o]: the orbit holding −ξ0.
-    let mut orbit_of_fiber = vec![0; l.fiber_count()];
-    for (o, orbit) in orbits.iter().enumerate() {
-        for &(f, _) in &orbit.points {
-            orbit_of_fiber[f] = o;
+/// The reference images' spectra on one torus, each made when first
+/// needed (usually only the first).
+pub(crate) struct References {
+    torus: [usize; 2],
+    spectra: Vec<OnceLock<Vec<Complex64>>>,
+}
+
+impl References {
+    pub fn new(torus: [usize; 2]) -> References {
+        References { torus, spectra: (0..REFERENCES).map(|_| OnceLock::new()).collect() }
+    }
+    /// The torus these references are made for.
+    pub fn torus(&self) -> [usize; 2] {
+        self.torus
+    }
+    fn spectrum(&self, which: u64) -> &[Complex64] {
+        let [n1, n2] = self.torus;
+        self.spectra[which as usize].get_or_init(|| fft2(&reference_image(n1, n2, which)))
+    }
+}
+
+/// The Parseval generators `φ_1..φ_L` in the group frame (origin at (0,0))
+/// from every orbit's share (see [`orbit_generators`]): each orbit writes
+/// only its own fibers of `φ`, so the result does not depend on where or in
+/// which order the shares were made.
+pub(crate) fn assemble(sym: &Symmetry, orbits: &[Orbit], results: &[OrbitResult], lmax: usize) -> Vec<Generator> {
+    let [n1, n2] = sym.lattice().torus();
+    let mut phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; lmax];
+    for (orbit, result) in orbits.iter().zip(results) {
+        let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
+        for (phi, (_, fibers)) in phis.iter_mut().zip(&result.generator) {
+            for (transport, v) in transports.iter().zip(fibers.column_iter()) {
+                transport.scatter(v.as_slice(), phi);
+            }
         }
     }
-    let conjugate: Vec<usize> = orbits.iter().map(|o| orbit_of_fiber[l.fiber_of(l.neg(o.rep))]).collect();
-    // Orbits on several threads, in two waves: first every orbit that
-    // chooses its own references, then the conjugates −O that reuse the
-    // choice made for O. Each orbit writes only its own fibers of φ, on
-    // this thread, so the result does not depend on the thread count.
-    let mut phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; lmax];
-    let mut chosen = vec![vec![0u64; orbits.len()]; lmax];
-    let (first, second): (Vec<usize>, Vec<usize>) = (0..orbits.len()).partition(|&o| conjugate[o] >= o);
-    let mut done = 0;
-    for wave in [first, second] {
-        let forced: Vec<Option<Vec<u64>>> = wave
-            .iter()
-            .map(|&o| (conjugate[o] < o).then(|| (0..lmax).map(|layer| chosen[layer][conjugate[o]]).collect()))
-            .collect();
-        for_each_parallel(
-            wave.len(),
-            |k| orbit_generators(sym, &orbits[wave[k]], &solutions[wave[k]], lmax, forced[k].as_deref(), &references),
-            |k, result| {
-                let share = result?;
-                for (layer, (c, fibers)) in share.layers.into_iter().enumerate() {
-                    chosen[layer][wave[k]] = c;
-                    for (transport, v) in share.transports.iter().zip(fibers.column_iter()) {
-                        transport.scatter(v.as_slice(), &mut phis[layer]);
-                    }
-                }
-                done += 1;
-                check(progress, "building generators", done as f64 / orbits.len() as f64)
-            },
-        )?;
-    }
-    let mut out = Vec::with_capacity(lmax);
-    for phi in phis {
-        let (image, imag) = ifft2_real_owned(phi, n1, n2);
-        let norm = image.energy().sqrt();
-        out.push(Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image });
-    }
-    Ok(out)
+    phis.into_iter()
+        .map(|phi| {
+            let (image, imag) = ifft2_real_owned(phi, n1, n2);
+            let norm = image.energy().sqrt();
+            Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image }
+        })
+        .collect()
 }
 
 thread_local! {
@@ -161,31 +143,25 @@ thread_local! {
     static SLOTS: std::cell::RefCell<Vec<usize>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
-/// One orbit's share of every generator.
-struct OrbitShare {
-    /// Per point `j`, the transport `T_j`: its scatter writes `φ_l(ξ_j)`.
-    transports: Vec<Gather>,
-    /// Per layer, the reference chosen and `T_jᴴ φ_l(ξ_j)` (column `j`;
-    /// no columns for an empty layer).
-    layers: Vec<(u64, DMatrix<Complex64>)>,
-}
-
-/// [`OrbitShare`] of one orbit; `forced` gives the references to use (the
-/// conjugate orbit's choice).
-fn orbit_generators(
+/// One orbit's share of every generator: per layer, the reference image
+/// chosen and `T_jᴴ φ_l(ξ_j)` for every point `j` (columns; none for an
+/// empty layer). The reference is the first of [`REFERENCES`] fixed ones
+/// whose conditioning reaches [`GOOD_CONDITIONING`] (else the best);
+/// `forced` gives the references to use instead (the conjugate orbit's
+/// choice, so that `ψ` and `φ` are real).
+pub(crate) fn orbit_generators(
     sym: &Symmetry,
     orbit: &Orbit,
     sol: &OrbitSolution,
     lmax: usize,
     forced: Option<&[u64]>,
-    references: &[OnceLock<Vec<Complex64>>],
-) -> Result<OrbitShare> {
+    references: &References,
+) -> Result<Vec<(u64, DMatrix<Complex64>)>> {
     let l = sym.lattice();
-    let [n1, n2] = l.torus();
     let d = l.fiber_len();
     let empty = || (0, DMatrix::zeros(d, 0));
     if sol.layers.iter().all(|q| q.ncols() == 0) {
-        return Ok(OrbitShare { transports: Vec::new(), layers: (0..lmax).map(|_| empty()).collect() });
+        return Ok((0..lmax).map(|_| empty()).collect());
     }
     // ψ lives in a compact buffer of the orbit's own fibers, so the many
     // gathers per layer read a few hundred kilobytes, not whole spectra.
@@ -227,7 +203,7 @@ fn orbit_generators(
             // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
             // project on the layer's basis there, transport back.
             let x = transported[c as usize].get_or_insert_with(|| {
-                let e = references[c as usize].get_or_init(|| fft2(&reference_image(n1, n2, c)));
+                let e = references.spectrum(c);
                 let mut x = DMatrix::zeros(d, transports.len());
                 for (j, t) in transports.iter().enumerate() {
                     t.apply_into(e, x.column_mut(j).as_mut_slice());
@@ -257,7 +233,7 @@ fn orbit_generators(
         }
         out.push((c, fibers));
     }
-    Ok(OrbitShare { transports, layers: out })
+    Ok(out)
 }
 
 /// The `d x (|G| · count)` matrix of fibers at `xi` of `π(γ_g) φ` for every

@@ -17,6 +17,7 @@ pub mod fiber;
 pub mod band;
 pub mod fit;
 pub mod frame;
+pub mod tasks;
 pub mod model;
 pub mod lattice_detect;
 pub mod resample;

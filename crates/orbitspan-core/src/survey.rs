@@ -279,40 +279,72 @@ pub fn fit_measured(
     origin_px: Option<[f64; 2]>,
     progress: &mut dyn Progress,
 ) -> Result<MeasuredFit> {
-    let coarse = grid_for(stack.height(), stack.width(), cell, &group, samples)?;
-    // The origin moves by less than one cell; a grid one cell smaller along
-    // each axis then stays inside the searched grid's footprint.
-    let shrink = |g: LatticeGrid| LatticeGrid { cells: [g.cells[0].max(2) - 1, g.cells[1].max(2) - 1], ..g };
-    let grid = shrink(match origin_px {
-        Some(p) => {
-            let g = coarse.grid_of(p);
-            // keep the grid inside the image: move by the offset modulo one cell
-            let s = coarse.samples;
-            coarse.shifted([g[0].rem_euclid(s[0] as f64), g[1].rem_euclid(s[1] as f64)])
-        }
-        None => {
-            let grid_stack = resample_stack(stack, &coarse)?;
-            let sym = Symmetry::new(coarse.size(), coarse.samples, &group)?;
-            let (_, o) = deviation(&grid_stack, &sym);
-            let s = coarse.samples;
-            coarse.shifted([o[0].rem_euclid(s[0] as f64), o[1].rem_euclid(s[1] as f64)])
-        }
-    });
-    let grid_stack = resample_stack(stack, &grid)?;
-    let settings = FitSettings {
-        group,
-        cell_rows: grid.samples[0],
-        cell_cols: grid.samples[1],
-        origin: [0, 0],
-        generators,
-        band,
-        lattice_coords: true,
-    };
-    let sym = Symmetry::new(grid.size(), grid.samples, &group)?;
-    let devs = deviations(&grid_stack, &sym);
-    let fitted = fit(&grid_stack, &settings, progress)?;
-    let resampling_error = grid.round_trip_error(stack.images());
-    Ok(MeasuredFit { grid, grid_stack, fit: fitted, deviations: devs, resampling_error })
+    let plan = MeasuredPlan::new(stack, cell, group, samples, generators, band, origin_px)?;
+    let fitted = fit(&plan.grid_stack, &plan.settings, progress)?;
+    Ok(plan.finish(stack, fitted))
+}
+
+/// [`fit_measured`] before and after its fit, for callers that run the fit
+/// elsewhere (the page spreads it over workers, [`crate::tasks`]): the
+/// grid, the resampled stack and the settings to fit it with.
+pub struct MeasuredPlan {
+    pub grid: LatticeGrid,
+    pub grid_stack: Stack,
+    pub settings: FitSettings,
+    deviations: Deviations,
+}
+
+impl MeasuredPlan {
+    /// Everything [`fit_measured`] does before fitting.
+    pub fn new(
+        stack: &Stack,
+        cell: CellVectors,
+        group: PlaneGroup,
+        samples: Option<usize>,
+        generators: usize,
+        band: Option<BandSpec>,
+        origin_px: Option<[f64; 2]>,
+    ) -> Result<MeasuredPlan> {
+        let coarse = grid_for(stack.height(), stack.width(), cell, &group, samples)?;
+        // The origin moves by less than one cell; a grid one cell smaller along
+        // each axis then stays inside the searched grid's footprint.
+        let shrink = |g: LatticeGrid| LatticeGrid { cells: [g.cells[0].max(2) - 1, g.cells[1].max(2) - 1], ..g };
+        let grid = shrink(match origin_px {
+            Some(p) => {
+                let g = coarse.grid_of(p);
+                // keep the grid inside the image: move by the offset modulo one cell
+                let s = coarse.samples;
+                coarse.shifted([g[0].rem_euclid(s[0] as f64), g[1].rem_euclid(s[1] as f64)])
+            }
+            None => {
+                let grid_stack = resample_stack(stack, &coarse)?;
+                let sym = Symmetry::new(coarse.size(), coarse.samples, &group)?;
+                let (_, o) = deviation(&grid_stack, &sym);
+                let s = coarse.samples;
+                coarse.shifted([o[0].rem_euclid(s[0] as f64), o[1].rem_euclid(s[1] as f64)])
+            }
+        });
+        let grid_stack = resample_stack(stack, &grid)?;
+        let settings = FitSettings {
+            group,
+            cell_rows: grid.samples[0],
+            cell_cols: grid.samples[1],
+            origin: [0, 0],
+            generators,
+            band,
+            lattice_coords: true,
+        };
+        let sym = Symmetry::new(grid.size(), grid.samples, &group)?;
+        let deviations = deviations(&grid_stack, &sym);
+        Ok(MeasuredPlan { grid, grid_stack, settings, deviations })
+    }
+
+    /// The measured fit from the fit of [`MeasuredPlan::grid_stack`]
+    /// (`stack`: the images in pixels, for the interpolation error).
+    pub fn finish(self, stack: &Stack, fitted: Fit) -> MeasuredFit {
+        let resampling_error = self.grid.round_trip_error(stack.images());
+        MeasuredFit { grid: self.grid, grid_stack: self.grid_stack, fit: fitted, deviations: self.deviations, resampling_error }
+    }
 }
 
 /// One row of the survey table.

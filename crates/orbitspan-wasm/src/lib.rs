@@ -19,4 +19,4 @@ mod session;
 
 pub use measured_lattice::{LatticeFit, LatticeInfo};
 pub use page_settings::{LatticeChoice, PageSettings};
-pub use session::{residual_legend, Session};
+pub use session::{residual_legend, FitTaskSolver, Session};

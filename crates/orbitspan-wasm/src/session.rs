@@ -9,7 +9,8 @@ use orbitspan_core::lattice_detect::{self, DetectOptions, Detection};
 use orbitspan_core::plane_group::{GroupSymbol, PlaneGroup, Setting};
 use orbitspan_core::report::Report;
 use orbitspan_core::stack::cut_tiles;
-use orbitspan_core::survey;
+use orbitspan_core::survey::{self, MeasuredPlan};
+use orbitspan_core::tasks::{FitTasks, TaskSolver};
 use orbitspan_core::{demo, fit, npy, picture as pictures, Error, FitSettings, Image, Model, Stack};
 use wasm_bindgen::prelude::*;
 
@@ -30,6 +31,15 @@ pub struct Session {
     /// Set when the model comes from a fit on a measured lattice: the model
     /// lives on this grid, not on the pixels.
     lattice_fit: Option<LatticeFit>,
+    /// A fit spread over workers, between `fitBegin` and `fitFinish`.
+    pending: Option<PendingFit>,
+}
+
+/// A fit whose orbit work runs as tasks (core `tasks`), and on a measured
+/// lattice what turns its result into the measured fit.
+struct PendingFit {
+    tasks: FitTasks,
+    measured: Option<(Measured, MeasuredPlan, Stack)>,
 }
 
 impl Default for Session {
@@ -82,7 +92,15 @@ fn offered_groups() -> Vec<PlaneGroup> {
 impl Session {
     #[wasm_bindgen(constructor)]
     pub fn new() -> Session {
-        Session { images: Vec::new(), report: None, model: None, chosen: None, detection: None, lattice_fit: None }
+        Session {
+            images: Vec::new(),
+            report: None,
+            model: None,
+            chosen: None,
+            detection: None,
+            lattice_fit: None,
+            pending: None,
+        }
     }
 
     /// Decodes one file (PNG, JPEG, TIFF; pages of a multi-page TIFF become
@@ -362,6 +380,86 @@ impl Session {
                 (m.fit, Some(info))
             }
         };
+        self.keep_fit(result, lattice_fit)
+    }
+
+    /// Starts the same fit as [`Session::fit`] with its orbit work cut into
+    /// tasks for other workers (core `tasks`): validates, resamples onto a
+    /// measured lattice if asked, transforms the images. Returns the number
+    /// of tasks. Then `fitTask(k)` gives each task's bytes for a
+    /// [`FitTaskSolver`], `fitAccept` takes the answers in any order, and
+    /// `fitFinish` ends the fit exactly as `fit` would (bit-identical).
+    /// Starting another fit drops an unfinished one.
+    #[wasm_bindgen(js_name = fitBegin)]
+    pub fn fit_begin(&mut self, settings: JsValue, progress: &Function) -> JsResult<usize> {
+        self.pending = None;
+        let page: PageSettings = from_js(settings, "settings")?;
+        let settings = page.to_core().map_err(error)?;
+        let stack = self.stack()?;
+        let pending = match page.lattice {
+            None => PendingFit {
+                tasks: FitTasks::new(&stack, &settings, &mut progress_callback(progress)).map_err(error)?,
+                measured: None,
+            },
+            Some(choice) => {
+                let measured = self.measure(choice).map_err(error)?;
+                let cell = measured.cell_for(&settings.group).map_err(error)?;
+                let plan = MeasuredPlan::new(&stack, cell, settings.group, page.samples, settings.generators, settings.band, None)
+                    .map_err(error)?;
+                let tasks =
+                    FitTasks::new(&plan.grid_stack, &plan.settings, &mut progress_callback(progress)).map_err(error)?;
+                PendingFit { tasks, measured: Some((measured, plan, stack)) }
+            }
+        };
+        let count = pending.tasks.len();
+        self.pending = Some(pending);
+        Ok(count)
+    }
+
+    /// The bytes of task `index` of the fit begun by `fitBegin`.
+    #[wasm_bindgen(js_name = fitTask)]
+    pub fn fit_task(&self, index: usize) -> JsResult<Uint8Array> {
+        let bytes = self.pending_fit()?.tasks.task(index).map_err(error)?;
+        Ok(Uint8Array::from(bytes.as_slice()))
+    }
+
+    /// Takes one task's answer (from any worker, in any order).
+    #[wasm_bindgen(js_name = fitAccept)]
+    pub fn fit_accept(&mut self, answer: &[u8]) -> JsResult<()> {
+        match self.pending.as_mut() {
+            Some(p) => p.tasks.accept(answer).map_err(error),
+            None => Err(error(Error::Internal("no fit has begun".into()))),
+        }
+    }
+
+    /// Ends the fit begun by `fitBegin` once every task is answered; returns
+    /// the report as `fit` does and keeps the fit as `fit` does.
+    #[wasm_bindgen(js_name = fitFinish)]
+    pub fn fit_finish(&mut self, progress: &Function) -> JsResult<JsValue> {
+        let pending = self.pending.take().ok_or_else(|| error(Error::Internal("no fit has begun".into())))?;
+        let result = pending.tasks.finish(&mut progress_callback(progress)).map_err(error)?;
+        match pending.measured {
+            None => self.keep_fit(result, None),
+            Some((measured, plan, stack)) => {
+                let m = plan.finish(&stack, result);
+                let info = LatticeFit::new(&measured, &m);
+                self.keep_fit(m.fit, Some(info))
+            }
+        }
+    }
+
+    /// Drops a fit begun by `fitBegin` (a task failed or was cancelled).
+    #[wasm_bindgen(js_name = fitAbort)]
+    pub fn fit_abort(&mut self) {
+        self.pending = None;
+    }
+
+    fn pending_fit(&self) -> JsResult<&PendingFit> {
+        self.pending.as_ref().ok_or_else(|| error(Error::Internal("no fit has begun".into())))
+    }
+
+    /// Keeps a finished fit as the session's report and model; returns the report.
+    fn keep_fit(&mut self, result: fit::Fit, lattice_fit: Option<LatticeFit>) -> JsResult<JsValue> {
         let report = to_js(&result.report)?;
         self.report = Some(result.report);
         self.model = Some(result.model);
@@ -683,4 +781,26 @@ fn check_result(problem: Option<String>, groups: Array) -> Object {
 /// `f − P_V f`, pixel by pixel.
 fn residual_of(image: &Image, fitted: &Image) -> Image {
     Image::new(image.height, image.width, image.pixels.iter().zip(&fitted.pixels).map(|(f, p)| f - p).collect())
+}
+
+/// Solves fit tasks in a helper worker (core `tasks::TaskSolver`): the
+/// worker needs no session and no images, only the task's bytes.
+#[wasm_bindgen]
+#[derive(Default)]
+pub struct FitTaskSolver {
+    solver: TaskSolver,
+}
+
+#[wasm_bindgen]
+impl FitTaskSolver {
+    #[wasm_bindgen(constructor)]
+    pub fn new() -> FitTaskSolver {
+        FitTaskSolver::default()
+    }
+
+    /// The answer to one task's bytes (for `Session.fitAccept`).
+    pub fn solve(&mut self, task: &[u8]) -> JsResult<Uint8Array> {
+        let answer = self.solver.solve(task).map_err(error)?;
+        Ok(Uint8Array::from(answer.as_slice()))
+    }
 }

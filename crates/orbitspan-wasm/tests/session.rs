@@ -447,3 +447,70 @@ fn the_survey_through_the_facade_equals_the_cores_ranking() {
     assert_eq!(rows, expected);
     assert_eq!(rows[0].group, "p6m");
 }
+
+/// Runs a fit as tasks: begin, every task through a separate solver (as a
+/// helper worker would), answers accepted last to first, finish.
+fn fit_by_tasks(session: &mut Session, settings: &PageSettings) -> JsValue {
+    let count = session.fit_begin(js(settings), &keep_going()).unwrap();
+    assert!(count > 1, "the fit is cut into several tasks");
+    let mut solver = orbitspan_wasm::FitTaskSolver::new();
+    let answers: Vec<Vec<u8>> =
+        (0..count).map(|k| solver.solve(&session.fit_task(k).unwrap().to_vec()).unwrap().to_vec()).collect();
+    for answer in answers.iter().rev() {
+        session.fit_accept(answer).unwrap();
+    }
+    session.fit_finish(&keep_going()).unwrap()
+}
+
+/// The model's generator values as the page reads them.
+fn generator_values(session: &Session) -> Vec<Vec<f64>> {
+    session
+        .generator_pictures()
+        .unwrap()
+        .iter()
+        .map(|p| js_sys::Float64Array::from(get(&p, "values")).to_vec())
+        .collect()
+}
+
+#[wasm_bindgen_test]
+fn a_fit_spread_over_tasks_equals_the_fit_in_one_worker_bit_for_bit() {
+    // Pixel grid.
+    let settings = page_settings("p4m", 4, 4, 3);
+    let mut one = session_with_tiny_stack();
+    let direct = one.fit(js(&settings), &keep_going()).unwrap();
+    let mut spread = session_with_tiny_stack();
+    let by_tasks = fit_by_tasks(&mut spread, &settings);
+    let (a, b): (Report, Report) =
+        (serde_wasm_bindgen::from_value(direct).unwrap(), serde_wasm_bindgen::from_value(by_tasks).unwrap());
+    assert_eq!(a, b);
+    assert_eq!(generator_values(&one), generator_values(&spread));
+    assert_eq!(one.model_bytes().unwrap().to_vec(), spread.model_bytes().unwrap().to_vec());
+
+    // Measured lattice: resampled, fitted as tasks, mapped back.
+    let (mut one, settings) = micrograph_session();
+    let direct: Report = serde_wasm_bindgen::from_value(one.fit(js(&settings), &keep_going()).unwrap()).unwrap();
+    let (mut spread, _) = micrograph_session();
+    let by_tasks: Report = serde_wasm_bindgen::from_value(fit_by_tasks(&mut spread, &settings)).unwrap();
+    assert_eq!(direct, by_tasks);
+    assert_eq!(one.lattice_json().unwrap(), spread.lattice_json().unwrap());
+    assert_eq!(generator_values(&one), generator_values(&spread));
+}
+
+#[wasm_bindgen_test]
+fn a_fit_task_answer_without_a_begun_fit_or_damaged_is_refused() {
+    let mut session = session_with_tiny_stack();
+    let (name, message) = error_name_and_message(&session.fit_accept(&[1, 2, 3]).unwrap_err());
+    assert_eq!(name, "InternalError");
+    assert!(message.contains("no fit has begun"), "{message}");
+    let count = session.fit_begin(js(&page_settings("p4m", 4, 4, 2)), &keep_going()).unwrap();
+    let task = session.fit_task(0).unwrap().to_vec();
+    let mut solver = orbitspan_wasm::FitTaskSolver::new();
+    let (_, message) = error_name_and_message(&solver.solve(&task[..10]).unwrap_err());
+    assert!(message.contains("cut short"), "{message}");
+    // Bad settings are the fit's own errors, before any task exists.
+    let (name, message) =
+        error_name_and_message(&session.fit_begin(js(&page_settings("p4m", 3, 3, 2)), &keep_going()).unwrap_err());
+    assert_eq!(name, "BadInput");
+    assert!(!message.is_empty());
+    assert!(session.fit_task(count - 1).is_err(), "a failed begin leaves no half fit");
+}

@@ -1,0 +1,475 @@
+//! The fit as independent tasks for workers that share no memory (the
+//! page's web workers, each with its own wasm instance).
+//!
+//! [`FitTasks`] transforms the images once, then cuts the orbit pairs of
+//! [`crate::fit`] (each orbit with its conjugate) into tasks. A task's bytes
+//! hold a header (image size, settings, the pairs) and, per pair, the
+//! fibers of every image at the pair's points: everything a worker needs,
+//! in about `1/tasks` of the stack's spectra. [`TaskSolver::solve`] rebuilds
+//! the symmetry from the header, runs the same per-pair code as the
+//! in-process fit on those fibers and answers with each orbit's result.
+//! [`FitTasks::accept`] stores the answers in any order and
+//! [`FitTasks::finish`] sums them in orbit order, so the fit is
+//! bit-identical to [`crate::fit::fit_with_path`] however the tasks were
+//! spread (the fibers are copied, never recomputed).
+//!
+//! Bytes are little-endian. Task: `TASK_MAGIC`, the header's length (u32)
+//! and JSON, then per pair and image the pair's fibers (first orbit's points,
+//! then the conjugate's; per point `d` complex values in the order of
+//! [`crate::lattice::Lattice::dual`], each as two f64). Answer:
+//! `ANSWER_MAGIC`, the orbit count (u32), then per orbit: index, `lmax`,
+//! images, `d` (u32 each), tail, `lmax` layer energies, per-image discarded
+//! energies (f64), and per layer the reference chosen (u64), the layer's
+//! dimension and the number of columns (u32) and the columns (complex).
+
+use crate::error::{Error, Result};
+use crate::fiber::{for_each_parallel, Orbit, Symmetry};
+use crate::fit::{orbit_pairs, solve_pair, validate, FiberPath, Fibers, Fit, OrbitResult, Prepared};
+use crate::frame::References;
+use crate::progress::Progress;
+use crate::settings::FitSettings;
+use crate::stack::Stack;
+use nalgebra::DMatrix;
+use num_complex::Complex64;
+use serde::{Deserialize, Serialize};
+use std::ops::Range;
+
+const TASK_MAGIC: &[u8; 8] = b"OSTASK01";
+const ANSWER_MAGIC: &[u8; 8] = b"OSDONE01";
+
+/// Aim for this many tasks (enough to keep 8 workers busy with uneven
+/// tasks), more when a task would hold more than [`TASK_BYTES`].
+const TARGET_TASKS: usize = 32;
+const TASK_BYTES: usize = 8 << 20;
+
+/// What a worker needs besides the fibers.
+#[derive(Serialize, Deserialize)]
+struct Header {
+    height: usize,
+    width: usize,
+    settings: FitSettings,
+    path: String,
+    images: usize,
+    pairs: Vec<Vec<usize>>,
+}
+
+fn path_name(path: FiberPath) -> &'static str {
+    match path {
+        FiberPath::Auto => "auto",
+        FiberPath::Covariance => "covariance",
+        FiberPath::Gram => "gram",
+    }
+}
+
+fn path_of(name: &str) -> Result<FiberPath> {
+    match name {
+        "auto" => Ok(FiberPath::Auto),
+        "covariance" => Ok(FiberPath::Covariance),
+        "gram" => Ok(FiberPath::Gram),
+        other => Err(corrupt(format!("unknown fiber path '{other}'"))),
+    }
+}
+
+fn corrupt(problem: impl std::fmt::Display) -> Error {
+    Error::Internal(format!("fit task data: {problem}"))
+}
+
+/// A fit in progress whose orbit work is handed out as tasks.
+pub struct FitTasks {
+    prepared: Prepared,
+    pairs: Vec<Vec<usize>>,
+    /// Per task, its range of `pairs`.
+    tasks: Vec<Range<usize>>,
+    results: Vec<Option<OrbitResult>>,
+}
+
+impl FitTasks {
+    /// Validates and transforms the images (progress stage "transforming
+    /// images"); the same errors as [`crate::fit::fit`].
+    pub fn new(stack: &Stack, settings: &FitSettings, progress: &mut dyn Progress) -> Result<FitTasks> {
+        Self::with_path(stack, settings, FiberPath::Auto, progress)
+    }
+
+    /// [`FitTasks::new`] with a forced choice of covariance or Gram matrices.
+    pub fn with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<FitTasks> {
+        let prepared = Prepared::new(stack, settings, path, progress)?;
+        let pairs = orbit_pairs(&prepared.sym, &prepared.orbits);
+        let m = prepared.spectra.len();
+        let d = prepared.sym.lattice().fiber_len();
+        let n = d.min(m * prepared.sym.order());
+        // Work per orbit: pooling r m fibers into an n x n matrix, and its
+        // decomposition (a cost model for splitting, not a measurement).
+        let cost = |pair: &Vec<usize>| -> f64 {
+            pair.iter()
+                .map(|&o| (prepared.orbits[o].points.len() * m * d * n) as f64 + (n * n * n) as f64)
+                .sum()
+        };
+        let total_bytes = m * prepared.sym.lattice().pixels() * 16;
+        let count = TARGET_TASKS.max(total_bytes.div_ceil(TASK_BYTES)).min(pairs.len()).max(1);
+        let costs: Vec<f64> = pairs.iter().map(cost).collect();
+        let share = costs.iter().sum::<f64>() / count as f64;
+        let mut tasks = Vec::with_capacity(count);
+        let (mut start, mut acc) = (0, 0.0);
+        for (k, c) in costs.iter().enumerate() {
+            acc += c;
+            if acc >= share * (tasks.len() + 1) as f64 && tasks.len() + 1 < count {
+                tasks.push(start..k + 1);
+                start = k + 1;
+            }
+        }
+        if start < pairs.len() || tasks.is_empty() {
+            tasks.push(start..pairs.len());
+        }
+        let results = (0..prepared.orbits.len()).map(|_| None).collect();
+        Ok(FitTasks { prepared, pairs, tasks, results })
+    }
+
+    /// The number of tasks.
+    pub fn len(&self) -> usize {
+        self.tasks.len()
+    }
+
+    /// Whether there are no tasks (never: every fit has the zero frequency).
+    pub fn is_empty(&self) -> bool {
+        self.tasks.is_empty()
+    }
+
+    /// The bytes of task `k` (see the module documentation).
+    pub fn task(&self, k: usize) -> Result<Vec<u8>> {
+        let range = self
+            .tasks
+            .get(k)
+            .ok_or_else(|| Error::Internal(format!("no fit task {k}: there are {}", self.tasks.len())))?;
+        let p = &self.prepared;
+        let pairs = &self.pairs[range.clone()];
+        let header = Header {
+            height: p.height,
+            width: p.width,
+            settings: p.settings.clone(),
+            path: path_name(p.path).into(),
+            images: p.spectra.len(),
+            pairs: pairs.to_vec(),
+        };
+        let json = serde_json::to_vec(&header).map_err(|e| Error::Internal(format!("fit task header: {e}")))?;
+        let d = p.sym.lattice().fiber_len();
+        let points: usize = pairs.iter().flatten().map(|&o| p.orbits[o].points.len()).sum();
+        let mut out = Vec::with_capacity(12 + json.len() + points * d * p.spectra.len() * 16);
+        out.extend_from_slice(TASK_MAGIC);
+        out.extend_from_slice(&(json.len() as u32).to_le_bytes());
+        out.extend_from_slice(&json);
+        let lattice = p.sym.lattice();
+        let dual = lattice.dual();
+        for pair in pairs {
+            let indices: Vec<usize> = pair
+                .iter()
+                .flat_map(|&o| &p.orbits[o].points)
+                .flat_map(|&(fiber, _)| {
+                    let rep = lattice.fiber_rep(fiber);
+                    dual.iter().map(move |&eta| lattice.linear(lattice.add(rep, eta)))
+                })
+                .collect();
+            for spectrum in &p.spectra {
+                for &i in &indices {
+                    out.extend_from_slice(&spectrum[i].re.to_le_bytes());
+                    out.extend_from_slice(&spectrum[i].im.to_le_bytes());
+                }
+            }
+        }
+        Ok(out)
+    }
+
+    /// Stores the orbit results of one task's answer.
+    pub fn accept(&mut self, answer: &[u8]) -> Result<()> {
+        let p = &self.prepared;
+        let d = p.sym.lattice().fiber_len();
+        let mut r = Reader::new(answer);
+        if r.take(8)? != ANSWER_MAGIC {
+            return Err(corrupt("not a fit task answer"));
+        }
+        let count = r.u32()?;
+        let mut parsed = Vec::with_capacity(count);
+        for _ in 0..count {
+            let o = r.u32()?;
+            let orbit = p.orbits.get(o).ok_or_else(|| corrupt(format!("no orbit {o}")))?;
+            let (lmax, m, dd) = (r.u32()?, r.u32()?, r.u32()?);
+            if lmax != p.lmax || m != p.spectra.len() || dd != d {
+                return Err(corrupt(format!(
+                    "orbit {o}: the answer is for {lmax} generators, {m} images, {dd}-pixel cells; the fit has {}, {}, {d}",
+                    p.lmax,
+                    p.spectra.len()
+                )));
+            }
+            let result = read_result(&mut r, orbit, lmax, m, d)?;
+            parsed.push((o, result));
+        }
+        if !r.is_done() {
+            return Err(corrupt("bytes left after the last orbit"));
+        }
+        for (o, result) in parsed {
+            self.results[o] = Some(result);
+        }
+        Ok(())
+    }
+
+    /// How many orbits have no result yet.
+    pub fn missing(&self) -> usize {
+        self.results.iter().filter(|r| r.is_none()).count()
+    }
+
+    /// The fit from every task's answer (progress stage "building generators").
+    pub fn finish(self, progress: &mut dyn Progress) -> Result<Fit> {
+        self.prepared.finish(self.results, progress)
+    }
+}
+
+fn read_result(r: &mut Reader, orbit: &Orbit, lmax: usize, m: usize, d: usize) -> Result<OrbitResult> {
+    let tail = r.f64()?;
+    let layer_energy = (0..lmax).map(|_| r.f64()).collect::<Result<Vec<_>>>()?;
+    let image_discarded = (0..m).map(|_| r.f64()).collect::<Result<Vec<_>>>()?;
+    let mut layer_dims = Vec::with_capacity(lmax);
+    let mut generator = Vec::with_capacity(lmax);
+    for _ in 0..lmax {
+        let chosen = r.u64()?;
+        let dim = r.u32()?;
+        let cols = r.u32()?;
+        if cols != 0 && cols != orbit.points.len() {
+            return Err(corrupt(format!("{cols} generator columns for an orbit of {} points", orbit.points.len())));
+        }
+        let values = (0..d * cols).map(|_| r.complex()).collect::<Result<Vec<_>>>()?;
+        layer_dims.push(dim);
+        generator.push((chosen, DMatrix::from_vec(d, cols, values)));
+    }
+    Ok(OrbitResult { layer_energy, tail, image_discarded, layer_dims, generator })
+}
+
+/// Solves tasks; keeps the reference images' spectra from task to task
+/// (they depend only on the image size).
+#[derive(Default)]
+pub struct TaskSolver {
+    references: Option<References>,
+}
+
+impl TaskSolver {
+    pub fn new() -> TaskSolver {
+        TaskSolver::default()
+    }
+
+    /// The answer to one task (see the module documentation).
+    pub fn solve(&mut self, task: &[u8]) -> Result<Vec<u8>> {
+        let mut r = Reader::new(task);
+        if r.take(8)? != TASK_MAGIC {
+            return Err(corrupt("not a fit task"));
+        }
+        let len = r.u32()?;
+        let header: Header = serde_json::from_slice(r.take(len)?).map_err(|e| corrupt(format!("header: {e}")))?;
+        let path = path_of(&header.path)?;
+        let sym: Symmetry = validate(header.height, header.width, &header.settings)?;
+        let orbits = sym.orbits();
+        let lattice = sym.lattice();
+        let d = lattice.fiber_len();
+        let (m, lmax) = (header.images, header.settings.generators);
+        for &o in header.pairs.iter().flatten() {
+            if o >= orbits.len() {
+                return Err(corrupt(format!("no orbit {o}: there are {}", orbits.len())));
+            }
+        }
+        let torus = lattice.torus();
+        if self.references.as_ref().map(References::torus) != Some(torus) {
+            self.references = Some(References::new(torus));
+        }
+        let references = self.references.as_ref().expect("set above");
+        // Each pair's fibers as compact buffers, one per image.
+        let mut inputs = Vec::with_capacity(header.pairs.len());
+        for pair in &header.pairs {
+            let len: usize = pair.iter().map(|&o| orbits[o].points.len()).sum::<usize>() * d;
+            let buffers = (0..m)
+                .map(|_| (0..len).map(|_| r.complex()).collect::<Result<Vec<_>>>())
+                .collect::<Result<Vec<_>>>()?;
+            inputs.push(buffers);
+        }
+        if !r.is_done() {
+            return Err(corrupt("bytes left after the last pair"));
+        }
+        let fiber_count = lattice.fiber_count();
+        let mut answers: Vec<Option<Vec<(usize, OrbitResult)>>> = (0..inputs.len()).map(|_| None).collect();
+        for_each_parallel(
+            inputs.len(),
+            |k| {
+                let pair = &header.pairs[k];
+                let mut slot = vec![usize::MAX; fiber_count];
+                for (j, &(fiber, _)) in pair.iter().flat_map(|&o| &orbits[o].points).enumerate() {
+                    slot[fiber] = j;
+                }
+                let fibers = Fibers::Local { buffers: &inputs[k], slot: &slot };
+                solve_pair(&sym, &orbits, pair, &fibers, lmax, path, references)
+            },
+            |k, answer| {
+                answers[k] = Some(answer?);
+                Ok::<(), Error>(())
+            },
+        )?;
+        let results: Vec<(usize, OrbitResult)> = answers.into_iter().flatten().flatten().collect();
+        let mut out = Vec::new();
+        out.extend_from_slice(ANSWER_MAGIC);
+        put_u32(&mut out, results.len());
+        for (o, result) in &results {
+            for v in [*o, lmax, m, d] {
+                put_u32(&mut out, v);
+            }
+            out.extend_from_slice(&result.tail.to_le_bytes());
+            for v in result.layer_energy.iter().chain(&result.image_discarded) {
+                out.extend_from_slice(&v.to_le_bytes());
+            }
+            for (dim, (chosen, columns)) in result.layer_dims.iter().zip(&result.generator) {
+                out.extend_from_slice(&chosen.to_le_bytes());
+                put_u32(&mut out, *dim);
+                put_u32(&mut out, columns.ncols());
+                for z in columns.iter() {
+                    out.extend_from_slice(&z.re.to_le_bytes());
+                    out.extend_from_slice(&z.im.to_le_bytes());
+                }
+            }
+        }
+        Ok(out)
+    }
+}
+
+fn put_u32(out: &mut Vec<u8>, v: usize) {
+    out.extend_from_slice(&(v as u32).to_le_bytes());
+}
+
+/// Reads little-endian numbers; running out of bytes is an error.
+struct Reader<'a> {
+    bytes: &'a [u8],
+    at: usize,
+}
+
+impl<'a> Reader<'a> {
+    fn new(bytes: &'a [u8]) -> Reader<'a> {
+        Reader { bytes, at: 0 }
+    }
+    fn take(&mut self, n: usize) -> Result<&'a [u8]> {
+        let end = self.at.checked_add(n).filter(|&e| e <= self.bytes.len()).ok_or_else(|| {
+            corrupt(format!("cut short: {} bytes, needed {} more at byte {}", self.bytes.len(), n, self.at))
+        })?;
+        let out = &self.bytes[self.at..end];
+        self.at = end;
+        Ok(out)
+    }
+    fn u32(&mut self) -> Result<usize> {
+        Ok(u32::from_le_bytes(self.take(4)?.try_into().expect("4 bytes")) as usize)
+    }
+    fn u64(&mut self) -> Result<u64> {
+        Ok(u64::from_le_bytes(self.take(8)?.try_into().expect("8 bytes")))
+    }
+    fn f64(&mut self) -> Result<f64> {
+        Ok(f64::from_le_bytes(self.take(8)?.try_into().expect("8 bytes")))
+    }
+    fn complex(&mut self) -> Result<Complex64> {
+        Ok(Complex64::new(self.f64()?, self.f64()?))
+    }
+    fn is_done(&self) -> bool {
+        self.at == self.bytes.len()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fit::fit_with_path;
+    use crate::plane_group::{GroupSymbol, PlaneGroup};
+    use crate::prng::SplitMix64;
+    use crate::progress::Silent;
+    use crate::settings::BandSpec;
+    use crate::stack::Image;
+
+    fn stack(n: [usize; 2], count: usize, seed: u64) -> Stack {
+        let mut rng = SplitMix64(seed);
+        Stack::new(
+            (0..count)
+                .map(|i| (format!("img{i}"), Image::new(n[0], n[1], (0..n[0] * n[1]).map(|_| rng.between(-1.0, 1.0)).collect())))
+                .collect(),
+        )
+        .unwrap()
+    }
+
+    fn settings(symbol: GroupSymbol, cell: [usize; 2], generators: usize) -> FitSettings {
+        FitSettings {
+            group: PlaneGroup::standard(symbol),
+            cell_rows: cell[0],
+            cell_cols: cell[1],
+            origin: [1, 2],
+            generators,
+            band: None,
+            lattice_coords: symbol.is_hexagonal(),
+        }
+    }
+
+    /// Runs every task through bytes, answers accepted in reverse order.
+    fn fit_by_tasks(stack: &Stack, s: &FitSettings, path: FiberPath) -> Fit {
+        let mut tasks = FitTasks::with_path(stack, s, path, &mut Silent).unwrap();
+        assert!(tasks.len() > 1, "the example is cut into several tasks");
+        let mut solver = TaskSolver::new();
+        let answers: Vec<Vec<u8>> = (0..tasks.len()).map(|k| solver.solve(&tasks.task(k).unwrap()).unwrap()).collect();
+        for answer in answers.iter().rev() {
+            tasks.accept(answer).unwrap();
+        }
+        assert_eq!(tasks.missing(), 0);
+        tasks.finish(&mut Silent).unwrap()
+    }
+
+    fn assert_identical(a: &Fit, b: &Fit, what: &str) {
+        assert_eq!(a.report, b.report, "{what}: reports differ");
+        assert_eq!(a.model.generators(), b.model.generators(), "{what}: generators differ");
+    }
+
+    #[test]
+    fn tasks_give_the_fit_bit_for_bit() {
+        let cases = [
+            (GroupSymbol::P4m, [16, 16], [4, 4], 3, 3, FiberPath::Auto),
+            (GroupSymbol::P4g, [16, 16], [4, 4], 5, 2, FiberPath::Covariance),
+            (GroupSymbol::Pmm, [12, 8], [4, 4], 2, 4, FiberPath::Gram),
+            (GroupSymbol::P6m, [12, 12], [4, 4], 3, 2, FiberPath::Auto),
+            (GroupSymbol::P1, [10, 10], [2, 5], 4, 2, FiberPath::Auto),
+            (GroupSymbol::Cm, [16, 16], [4, 4], 3, 2, FiberPath::Auto),
+        ];
+        for (k, &(symbol, n, cell, count, l, path)) in cases.iter().enumerate() {
+            let stack = stack(n, count, 100 + k as u64);
+            let s = settings(symbol, cell, l);
+            let direct = fit_with_path(&stack, &s, path, &mut Silent).unwrap();
+            assert_identical(&direct, &fit_by_tasks(&stack, &s, path), &format!("{symbol:?}"));
+        }
+        // Band-limited: the band's restriction happens before the tasks.
+        let stack = stack([16, 16], 3, 7);
+        let s = FitSettings { band: Some(BandSpec::Frequencies(60)), ..settings(GroupSymbol::P4m, [4, 4], 2) };
+        let direct = fit_with_path(&stack, &s, FiberPath::Auto, &mut Silent).unwrap();
+        assert_identical(&direct, &fit_by_tasks(&stack, &s, FiberPath::Auto), "band-limited p4m");
+    }
+
+    #[test]
+    fn damaged_task_bytes_are_refused_with_the_problem() {
+        let stack = stack([16, 16], 2, 3);
+        let s = settings(GroupSymbol::P4m, [4, 4], 2);
+        let mut tasks = FitTasks::new(&stack, &s, &mut Silent).unwrap();
+        let task = tasks.task(0).unwrap();
+        let mut solver = TaskSolver::new();
+        let short = solver.solve(&task[..task.len() - 5]).unwrap_err().to_string();
+        assert!(short.contains("cut short"), "{short}");
+        let mut long = task.clone();
+        long.push(0);
+        assert!(solver.solve(&long).unwrap_err().to_string().contains("bytes left"));
+        assert!(solver.solve(b"nonsense").unwrap_err().to_string().contains("not a fit task"));
+        let answer = solver.solve(&task).unwrap();
+        assert!(tasks.accept(&answer[..answer.len() - 1]).unwrap_err().to_string().contains("cut short"));
+        assert!(tasks.task(tasks.len()).is_err());
+        // Answers for another fit's shape are refused, not mixed in.
+        let other = FitTasks::new(&stack, &settings(GroupSymbol::P4m, [4, 4], 3), &mut Silent).unwrap();
+        let foreign = solver.solve(&other.task(0).unwrap()).unwrap();
+        assert!(tasks.accept(&foreign).unwrap_err().to_string().contains("3 generators"));
+        // A fit with an orbit unanswered does not finish.
+        tasks.accept(&answer).unwrap();
+        let missing = tasks.missing();
+        assert!(missing > 0);
+        assert!(tasks.finish(&mut Silent).unwrap_err().to_string().contains("have no result"));
+    }
+}
