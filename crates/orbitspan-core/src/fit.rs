@@ -108,7 +108,7 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
     let pairs = orbit_pairs(&prepared.sym, &prepared.orbits);
     let references = frame::References::new(prepared.sym.lattice().torus());
     let fibers = Fibers::Full(&prepared.spectra);
-    let mut results: Vec<Option<OrbitResult>> = (0..prepared.orbits.len()).map(|_| None).collect();
+    let mut collected = Collected::new(&prepared);
     let mut done = 0;
     check(progress, "fitting frequencies", 0.0)?;
     for_each_parallel(
@@ -116,13 +116,42 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
         |k| solve_pair(&prepared.sym, &prepared.orbits, &pairs[k], &fibers, prepared.lmax, path, &references),
         |_, pair| {
             for (o, result) in pair? {
-                results[o] = Some(result);
+                collected.absorb(&prepared, o, result);
             }
             done += 1;
             check(progress, "fitting frequencies", done as f64 / pairs.len() as f64)
         },
     )?;
-    prepared.finish(results, progress)
+    prepared.finish(collected, progress)
+}
+
+/// The orbit results as they arrive, in any order. Each orbit's share of
+/// the generators goes into the generator spectra at once, so the
+/// per-orbit matrices are not held beside them.
+pub(crate) struct Collected {
+    results: Vec<Option<OrbitResult>>,
+    generators: frame::GeneratorSpectra,
+}
+
+impl Collected {
+    pub fn new(prepared: &Prepared) -> Collected {
+        Collected {
+            results: (0..prepared.orbits.len()).map(|_| None).collect(),
+            generators: frame::GeneratorSpectra::new(prepared.sym.lattice().torus(), prepared.lmax),
+        }
+    }
+
+    /// Stores orbit `o`'s result (its generator share written out).
+    pub fn absorb(&mut self, prepared: &Prepared, o: usize, mut result: OrbitResult) {
+        let share = std::mem::take(&mut result.generator);
+        self.generators.write(&prepared.sym, &prepared.orbits[o], &share);
+        self.results[o] = Some(result);
+    }
+
+    /// How many orbits have no result yet.
+    pub fn missing(&self) -> usize {
+        self.results.iter().filter(|r| r.is_none()).count()
+    }
 }
 
 /// A fit after the transforms: the symmetry, the orbits, the spectra every
@@ -189,12 +218,13 @@ impl Prepared {
     /// every orbit's result (indexed by orbit). Sums run in orbit order, so
     /// the result does not depend on where or in which order orbits were
     /// solved.
-    pub fn finish(mut self, results: Vec<Option<OrbitResult>>, progress: &mut dyn Progress) -> Result<Fit> {
+    pub fn finish(mut self, collected: Collected, progress: &mut dyn Progress) -> Result<Fit> {
         self.spectra = Vec::new();
-        let missing = results.iter().filter(|r| r.is_none()).count();
+        let missing = collected.missing();
         if missing > 0 {
-            return Err(Error::Internal(format!("{missing} of {} frequency orbits have no result", results.len())));
+            return Err(Error::Internal(format!("{missing} of {} frequency orbits have no result", collected.results.len())));
         }
+        let Collected { results, generators } = collected;
         let results: Vec<OrbitResult> = results.into_iter().flatten().collect();
         let (h, w, lmax) = (self.height, self.width, self.lmax);
         let pixels = (h * w) as f64;
@@ -207,7 +237,7 @@ impl Prepared {
             curve.push(CurvePoint { generators: l, error, relative_error: ratio(error, total_energy) });
         }
         check(progress, "building generators", 0.0)?;
-        let generators = frame::assemble(&self.sym, &self.orbits, &results, lmax);
+        let generators = generators.into_generators();
         check(progress, "building generators", 1.0)?;
         let layer_dims: Vec<usize> = (0..lmax)
             .map(|l| self.orbits.iter().zip(&results).map(|(o, s)| o.points.len() * s.layer_dims[l]).sum())
@@ -304,7 +334,8 @@ pub(crate) struct OrbitResult {
     /// Per layer, its dimension at `ξ0` (columns of its basis).
     pub layer_dims: Vec<usize>,
     /// Per layer, the reference image chosen and `T_jᴴ φ_l(ξ_j)` for every
-    /// point `j` (columns; none for an empty layer).
+    /// point `j` (columns; none for an empty layer). Emptied once written
+    /// into the generator spectra ([`Collected::absorb`]).
     pub generator: Vec<(u64, DMatrix<Complex64>)>,
 }
 

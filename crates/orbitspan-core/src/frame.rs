@@ -24,7 +24,7 @@
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use std::sync::OnceLock;
-use crate::fit::{adjoint_product, product, OrbitResult, OrbitSolution};
+use crate::fit::{adjoint_product, product, OrbitSolution};
 use crate::prng::SplitMix64;
 use crate::spectrum::{fft2, ifft2_real_owned};
 use crate::stack::Image;
@@ -113,28 +113,52 @@ impl References {
     }
 }
 
-/// The Parseval generators `φ_1..φ_L` in the group frame (origin at (0,0))
-/// from every orbit's share (see [`orbit_generators`]): each orbit writes
-/// only its own fibers of `φ`, so the result does not depend on where or in
-/// which order the shares were made.
-pub(crate) fn assemble(sym: &Symmetry, orbits: &[Orbit], results: &[OrbitResult], lmax: usize) -> Vec<Generator> {
-    let [n1, n2] = sym.lattice().torus();
-    let mut phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; lmax];
-    for (orbit, result) in orbits.iter().zip(results) {
+/// The spectra of the Parseval generators `φ_1..φ_L` in the group frame
+/// (origin at (0,0)), written orbit by orbit from each orbit's share (see
+/// [`orbit_generators`]): each orbit writes only its own fibers, so the
+/// result does not depend on where or in which order the shares were made.
+pub(crate) struct GeneratorSpectra {
+    torus: [usize; 2],
+    lmax: usize,
+    /// Per layer, made on the first write.
+    phis: Vec<Vec<Complex64>>,
+}
+
+impl GeneratorSpectra {
+    pub fn new(torus: [usize; 2], lmax: usize) -> GeneratorSpectra {
+        GeneratorSpectra { torus, lmax, phis: Vec::new() }
+    }
+
+    /// Writes one orbit's share: per layer, `φ_l(ξ_j) = T_j` applied to column `j`.
+    pub fn write(&mut self, sym: &Symmetry, orbit: &Orbit, share: &[(u64, DMatrix<Complex64>)]) {
+        if self.phis.is_empty() {
+            let [n1, n2] = self.torus;
+            self.phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; self.lmax];
+        }
         let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
-        for (phi, (_, fibers)) in phis.iter_mut().zip(&result.generator) {
+        for (phi, (_, fibers)) in self.phis.iter_mut().zip(share) {
             for (transport, v) in transports.iter().zip(fibers.column_iter()) {
                 transport.scatter(v.as_slice(), phi);
             }
         }
     }
-    phis.into_iter()
-        .map(|phi| {
+
+    /// The generator images, each spectrum dropped once transformed.
+    pub fn into_generators(self) -> Vec<Generator> {
+        let [n1, n2] = self.torus;
+        let mut phis = self.phis;
+        if phis.is_empty() {
+            phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; self.lmax];
+        }
+        phis.reverse();
+        let mut out = Vec::with_capacity(self.lmax);
+        while let Some(phi) = phis.pop() {
             let (image, imag) = ifft2_real_owned(phi, n1, n2);
             let norm = image.energy().sqrt();
-            Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image }
-        })
-        .collect()
+            out.push(Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image });
+        }
+        out
+    }
 }
 
 thread_local! {

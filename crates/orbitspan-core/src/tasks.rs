@@ -24,7 +24,7 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Orbit, Symmetry};
-use crate::fit::{orbit_pairs, solve_pair, validate, FiberPath, Fibers, Fit, OrbitResult, Prepared};
+use crate::fit::{orbit_pairs, solve_pair, validate, Collected, FiberPath, Fibers, Fit, OrbitResult, Prepared};
 use crate::frame::References;
 use crate::progress::Progress;
 use crate::settings::FitSettings;
@@ -80,7 +80,7 @@ pub struct FitTasks {
     pairs: Vec<Vec<usize>>,
     /// Per task, its range of `pairs`.
     tasks: Vec<Range<usize>>,
-    results: Vec<Option<OrbitResult>>,
+    collected: Collected,
 }
 
 impl FitTasks {
@@ -120,8 +120,8 @@ impl FitTasks {
         if start < pairs.len() || tasks.is_empty() {
             tasks.push(start..pairs.len());
         }
-        let results = (0..prepared.orbits.len()).map(|_| None).collect();
-        Ok(FitTasks { prepared, pairs, tasks, results })
+        let collected = Collected::new(&prepared);
+        Ok(FitTasks { prepared, pairs, tasks, collected })
     }
 
     /// The number of tasks.
@@ -206,19 +206,19 @@ impl FitTasks {
             return Err(corrupt("bytes left after the last orbit"));
         }
         for (o, result) in parsed {
-            self.results[o] = Some(result);
+            self.collected.absorb(&self.prepared, o, result);
         }
         Ok(())
     }
 
     /// How many orbits have no result yet.
     pub fn missing(&self) -> usize {
-        self.results.iter().filter(|r| r.is_none()).count()
+        self.collected.missing()
     }
 
     /// The fit from every task's answer (progress stage "building generators").
     pub fn finish(self, progress: &mut dyn Progress) -> Result<Fit> {
-        self.prepared.finish(self.results, progress)
+        self.prepared.finish(self.collected, progress)
     }
 }
 
