@@ -93,9 +93,21 @@ pub fn frequency_norm_sq(xi: Freq, n: [usize; 2], hexagonal: bool) -> f64 {
     best
 }
 
-/// Chooses `Ω` for a band specification. `spectra` are the stack's spectra
-/// (needed for the energy-optimal choice).
-pub fn select(sym: &Symmetry, spec: &BandSpec, spectra: &[Vec<Complex64>], hexagonal: bool) -> Result<Band> {
+/// The stack's power per frequency, `Σ_i |f̂_i(ξ)|²` (images in order).
+pub fn power(spectra: &[Vec<Complex64>]) -> Vec<f64> {
+    let mut out = vec![0.0; spectra.first().map_or(0, Vec::len)];
+    for s in spectra {
+        for (p, z) in out.iter_mut().zip(s) {
+            *p += z.norm_sqr();
+        }
+    }
+    out
+}
+
+/// Chooses `Ω` for a band specification. `power` is the stack's
+/// [`power`] per frequency, needed for the energy-optimal choice
+/// (`Frequencies`; the disc does not read it).
+pub fn select(sym: &Symmetry, spec: &BandSpec, power: &[f64], hexagonal: bool) -> Result<Band> {
     let pixels = sym.lattice().pixels();
     let orbits = frequency_orbits(sym);
     let mut mask = vec![false; pixels];
@@ -106,10 +118,10 @@ pub fn select(sym: &Symmetry, spec: &BandSpec, spectra: &[Vec<Complex64>], hexag
                     "band of {m} frequencies is impossible: choose between 1 and {pixels} (the number of pixels)"
                 )));
             }
-            let energy: Vec<f64> = orbits
-                .iter()
-                .map(|o| o.iter().map(|&k| spectra.iter().map(|s| s[k].norm_sqr()).sum::<f64>()).sum())
-                .collect();
+            if power.len() != pixels {
+                return Err(Error::Internal(format!("band selection: power of {} frequencies for {pixels}", power.len())));
+            }
+            let energy: Vec<f64> = orbits.iter().map(|o| o.iter().map(|&k| power[k]).sum()).collect();
             for o in best_orbits(&orbits, &energy, m) {
                 for &k in &orbits[o] {
                     mask[k] = true;

@@ -21,7 +21,8 @@ use crate::isotypic::{isotypic_blocks, Monomial};
 use crate::model::Model;
 use crate::progress::Progress;
 use crate::report::{BandReport, CurvePoint, GeneratorInfo, ImageError, Report};
-use crate::settings::FitSettings;
+use crate::pair_fibers::{self, PairFibers};
+use crate::settings::{BandSpec, FitSettings};
 use crate::spectrum::fft2;
 use crate::stack::{Image, Stack};
 use nalgebra::{DMatrix, DVector};
@@ -105,15 +106,17 @@ pub fn fit(stack: &Stack, settings: &FitSettings, progress: &mut dyn Progress) -
 /// same pairs can run in other processes through [`crate::tasks`].
 pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<Fit> {
     let prepared = Prepared::new(stack, settings, path, progress)?;
-    let pairs = orbit_pairs(&prepared.sym, &prepared.orbits);
+    let pairs = &prepared.pairs;
     let references = frame::References::new(prepared.sym.lattice().torus());
-    let fibers = Fibers::Full(&prepared.spectra);
     let mut collected = Collected::new(&prepared);
     let mut done = 0;
     check(progress, "fitting frequencies", 0.0)?;
     for_each_parallel(
         pairs.len(),
-        |k| solve_pair(&prepared.sym, &prepared.orbits, &pairs[k], &fibers, prepared.lmax, path, &references),
+        |k| {
+            let (sym, orbits) = (&prepared.sym, &prepared.orbits);
+            solve_kept_pair(sym, orbits, &pairs[k], prepared.fibers.pair(k), prepared.images, prepared.lmax, path, &references)
+        },
         |_, pair| {
             for (o, result) in pair? {
                 collected.absorb(&prepared, o, result);
@@ -154,16 +157,21 @@ impl Collected {
     }
 }
 
-/// A fit after the transforms: the symmetry, the orbits, the spectra every
-/// orbit reads, and what the report needs of the stack.
+/// A fit after the transforms: the symmetry, the orbits and their pairs,
+/// the spectra every pair reads, and what the report needs of the stack.
 pub(crate) struct Prepared {
     pub settings: FitSettings,
     pub path: FiberPath,
     pub sym: Symmetry,
     pub orbits: Vec<Orbit>,
+    /// The units of work: [`orbit_pairs`].
+    pub pairs: Vec<Vec<usize>>,
     pub lmax: usize,
-    /// Spectra of the images in the group frame (restricted to the band).
-    pub spectra: Vec<Vec<Complex64>>,
+    /// The number of images.
+    pub images: usize,
+    /// Spectra of the images in the group frame (restricted to the band),
+    /// kept by pair, half of them (see [`crate::pair_fibers`]).
+    pub fibers: PairFibers,
     /// Per image, `||f_i − P_Ω f_i||²` (zero without a band).
     pub outside_per_image: Vec<f64>,
     pub band: Option<Band>,
@@ -177,33 +185,54 @@ pub(crate) struct Prepared {
 impl Prepared {
     /// Validates, transforms every image (moved so that `origin` sits at
     /// pixel (0, 0)) and applies the band limit:
-    /// `E(F,S) = E(P_Ω F, S) + ||F − P_Ω F||²`.
+    /// `E(F,S) = E(P_Ω F, S) + ||F − P_Ω F||²`. One image's whole spectrum
+    /// at a time; a band of the `M` most energetic frequencies first needs
+    /// the stack's power per frequency, so its images are transformed twice.
     pub fn new(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<Prepared> {
         let (h, w) = (stack.height(), stack.width());
         let sym = validate(h, w, settings)?;
-        let mut spectra = Vec::with_capacity(stack.len());
-        for (i, img) in stack.images().iter().enumerate() {
-            check(progress, "transforming images", i as f64 / stack.len() as f64)?;
-            spectra.push(fft2(&to_group_frame(img, settings.origin)));
-        }
-        let mut outside_per_image = vec![0.0; stack.len()];
+        let orbits = sym.orbits();
+        let pairs = orbit_pairs(&sym, &orbits);
+        let m = stack.len();
+        let spectrum = |img: &Image| fft2(&to_group_frame(img, settings.origin));
+        let by_power = matches!(settings.band, Some(BandSpec::Frequencies(_)));
         let band: Option<Band> = match &settings.band {
             Some(spec) => {
-                let b = band::select(&sym, spec, &spectra, settings.group.symbol.is_hexagonal())?;
-                for (s, out) in spectra.iter_mut().zip(outside_per_image.iter_mut()) {
-                    *out = b.restrict(s);
+                let mut power = Vec::new();
+                if by_power {
+                    power = vec![0.0; h * w];
+                    for (i, img) in stack.images().iter().enumerate() {
+                        check(progress, "transforming images", i as f64 / (2 * m) as f64)?;
+                        for (p, z) in power.iter_mut().zip(&spectrum(img)) {
+                            *p += z.norm_sqr();
+                        }
+                    }
                 }
-                Some(b)
+                Some(band::select(&sym, spec, &power, settings.group.symbol.is_hexagonal())?)
             }
             None => None,
         };
+        let (done, total) = if by_power { (m, 2 * m) } else { (0, m) };
+        let mut fibers = PairFibers::new(&sym, &orbits, &pairs);
+        let mut outside_per_image = vec![0.0; m];
+        for (i, img) in stack.images().iter().enumerate() {
+            check(progress, "transforming images", (done + i) as f64 / total as f64)?;
+            let mut s = spectrum(img);
+            if let Some(b) = &band {
+                outside_per_image[i] = b.restrict(&mut s);
+            }
+            fibers.push(&s);
+        }
+        fibers.finish_filling();
         Ok(Prepared {
             settings: settings.clone(),
             path,
-            orbits: sym.orbits(),
+            orbits,
+            pairs,
             sym,
             lmax: settings.generators,
-            spectra,
+            images: m,
+            fibers,
             outside_per_image,
             band,
             height: h,
@@ -219,7 +248,7 @@ impl Prepared {
     /// the result does not depend on where or in which order orbits were
     /// solved.
     pub fn finish(mut self, collected: Collected, progress: &mut dyn Progress) -> Result<Fit> {
-        self.spectra = Vec::new();
+        self.fibers = PairFibers::new(&self.sym, &self.orbits, &[]);
         let missing = collected.missing();
         if missing > 0 {
             return Err(Error::Internal(format!("{missing} of {} frequency orbits have no result", collected.results.len())));
@@ -371,29 +400,43 @@ pub(crate) fn solve_pair(
     Ok(out)
 }
 
-/// Where an orbit's fibers are read: whole spectra, or compact buffers that
-/// hold only some fibers (fiber `f` at slot `slot[f]`, see
+/// Solves one pair from its kept fibers (`kept`: image-major, see
+/// [`PairFibers::pair`]): the fibers are expanded into one buffer per image
+/// and read through localised gathers. The in-process fit and every task
+/// go through here, so they compute the same numbers.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn solve_kept_pair(
+    sym: &Symmetry,
+    orbits: &[Orbit],
+    pair: &[usize],
+    kept: &[Complex64],
+    images: usize,
+    lmax: usize,
+    path: FiberPath,
+    references: &frame::References,
+) -> Result<Vec<(usize, OrbitResult)>> {
+    let buffers = pair_fibers::expand(sym, orbits, pair, kept, images)?;
+    pair_fibers::with_slots(sym, orbits, pair, |slot| {
+        solve_pair(sym, orbits, pair, &Fibers { buffers: &buffers, slot }, lmax, path, references)
+    })
+}
+
+/// Where an orbit's fibers are read: compact buffers that hold only the
+/// fibers of its pair (fiber `f` at slot `slot[f]`, see
 /// [`Gather::localised`]), one buffer per image.
-pub(crate) enum Fibers<'a> {
-    Full(&'a [Vec<Complex64>]),
-    Local { buffers: &'a [Vec<Complex64>], slot: &'a [usize] },
+pub(crate) struct Fibers<'a> {
+    buffers: &'a [Vec<Complex64>],
+    slot: &'a [usize],
 }
 
 impl Fibers<'_> {
     /// One buffer per image.
     fn data(&self) -> &[Vec<Complex64>] {
-        match self {
-            Fibers::Full(s) => s,
-            Fibers::Local { buffers, .. } => buffers,
-        }
+        self.buffers
     }
     /// [`Symmetry::gather`] reading from [`Fibers::data`].
     fn gather(&self, sym: &Symmetry, xi: [usize; 2], op: usize) -> Gather {
-        let g = sym.gather(xi, op);
-        match self {
-            Fibers::Full(_) => g,
-            Fibers::Local { slot, .. } => g.localised(sym.lattice(), slot),
-        }
+        sym.gather(xi, op).localised(sym.lattice(), self.slot)
     }
 }
 

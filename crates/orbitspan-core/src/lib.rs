@@ -18,6 +18,7 @@ pub mod band;
 pub mod fit;
 pub mod frame;
 pub mod tasks;
+pub(crate) mod pair_fibers;
 pub mod model;
 pub mod lattice_detect;
 pub mod resample;

@@ -3,9 +3,10 @@
 //!
 //! [`FitTasks`] transforms the images once, then cuts the orbit pairs of
 //! [`crate::fit`] (each orbit with its conjugate) into tasks. A task's bytes
-//! hold a header (image size, settings, the pairs) and, per pair, the
-//! fibers of every image at the pair's points: everything a worker needs,
-//! in about `1/tasks` of the stack's spectra. [`TaskSolver::solve`] rebuilds
+//! hold a header (image size, settings, the pairs) and, per pair, the kept
+//! fibers of every image ([`crate::pair_fibers`]: half of the pair's
+//! points, the others are their conjugates): everything a worker needs, in
+//! about `1/tasks` of the stack's half spectra. [`TaskSolver::solve`] rebuilds
 //! the symmetry from the header, runs the same per-pair code as the
 //! in-process fit on those fibers and answers with each orbit's result.
 //! [`FitTasks::accept`] stores the answers in any order and
@@ -14,9 +15,9 @@
 //! spread (the fibers are copied, never recomputed).
 //!
 //! Bytes are little-endian. Task: `TASK_MAGIC`, the header's length (u32)
-//! and JSON, then per pair and image the pair's fibers (first orbit's points,
-//! then the conjugate's; per point `d` complex values in the order of
-//! [`crate::lattice::Lattice::dual`], each as two f64). Answer:
+//! and JSON, then per pair and image the pair's kept fibers (per kept point
+//! `d` complex values in the order of [`crate::lattice::Lattice::dual`],
+//! each as two f64). Answer:
 //! `ANSWER_MAGIC`, the orbit count (u32), then per orbit: index, `lmax`,
 //! images, `d` (u32 each), tail, `lmax` layer energies, per-image discarded
 //! energies (f64), and per layer the reference chosen (u64), the layer's
@@ -24,7 +25,8 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Orbit, Symmetry};
-use crate::fit::{orbit_pairs, solve_pair, validate, Collected, FiberPath, Fibers, Fit, OrbitResult, Prepared};
+use crate::fit::{solve_kept_pair, validate, Collected, FiberPath, Fit, OrbitResult, Prepared};
+use crate::pair_fibers::kept_len;
 use crate::frame::References;
 use crate::progress::Progress;
 use crate::settings::FitSettings;
@@ -77,8 +79,7 @@ fn corrupt(problem: impl std::fmt::Display) -> Error {
 /// A fit in progress whose orbit work is handed out as tasks.
 pub struct FitTasks {
     prepared: Prepared,
-    pairs: Vec<Vec<usize>>,
-    /// Per task, its range of `pairs`.
+    /// Per task, its range of the prepared fit's pairs.
     tasks: Vec<Range<usize>>,
     collected: Collected,
 }
@@ -93,8 +94,8 @@ impl FitTasks {
     /// [`FitTasks::new`] with a forced choice of covariance or Gram matrices.
     pub fn with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<FitTasks> {
         let prepared = Prepared::new(stack, settings, path, progress)?;
-        let pairs = orbit_pairs(&prepared.sym, &prepared.orbits);
-        let m = prepared.spectra.len();
+        let pairs = &prepared.pairs;
+        let m = prepared.images;
         let d = prepared.sym.lattice().fiber_len();
         let n = d.min(m * prepared.sym.order());
         // Work per orbit: pooling r m fibers into an n x n matrix, and its
@@ -104,7 +105,7 @@ impl FitTasks {
                 .map(|&o| (prepared.orbits[o].points.len() * m * d * n) as f64 + (n * n * n) as f64)
                 .sum()
         };
-        let total_bytes = m * prepared.sym.lattice().pixels() * 16;
+        let total_bytes: usize = (0..pairs.len()).map(|k| prepared.fibers.pair(k).len() * 16).sum();
         let count = TARGET_TASKS.max(total_bytes.div_ceil(TASK_BYTES)).min(pairs.len()).max(1);
         let costs: Vec<f64> = pairs.iter().map(cost).collect();
         let share = costs.iter().sum::<f64>() / count as f64;
@@ -121,7 +122,7 @@ impl FitTasks {
             tasks.push(start..pairs.len());
         }
         let collected = Collected::new(&prepared);
-        Ok(FitTasks { prepared, pairs, tasks, collected })
+        Ok(FitTasks { prepared, tasks, collected })
     }
 
     /// The number of tasks.
@@ -141,38 +142,24 @@ impl FitTasks {
             .get(k)
             .ok_or_else(|| Error::Internal(format!("no fit task {k}: there are {}", self.tasks.len())))?;
         let p = &self.prepared;
-        let pairs = &self.pairs[range.clone()];
         let header = Header {
             height: p.height,
             width: p.width,
             settings: p.settings.clone(),
             path: path_name(p.path).into(),
-            images: p.spectra.len(),
-            pairs: pairs.to_vec(),
+            images: p.images,
+            pairs: p.pairs[range.clone()].to_vec(),
         };
         let json = serde_json::to_vec(&header).map_err(|e| Error::Internal(format!("fit task header: {e}")))?;
-        let d = p.sym.lattice().fiber_len();
-        let points: usize = pairs.iter().flatten().map(|&o| p.orbits[o].points.len()).sum();
-        let mut out = Vec::with_capacity(12 + json.len() + points * d * p.spectra.len() * 16);
+        let values: usize = range.clone().map(|k| p.fibers.pair(k).len()).sum();
+        let mut out = Vec::with_capacity(12 + json.len() + values * 16);
         out.extend_from_slice(TASK_MAGIC);
         out.extend_from_slice(&(json.len() as u32).to_le_bytes());
         out.extend_from_slice(&json);
-        let lattice = p.sym.lattice();
-        let dual = lattice.dual();
-        for pair in pairs {
-            let indices: Vec<usize> = pair
-                .iter()
-                .flat_map(|&o| &p.orbits[o].points)
-                .flat_map(|&(fiber, _)| {
-                    let rep = lattice.fiber_rep(fiber);
-                    dual.iter().map(move |&eta| lattice.linear(lattice.add(rep, eta)))
-                })
-                .collect();
-            for spectrum in &p.spectra {
-                for &i in &indices {
-                    out.extend_from_slice(&spectrum[i].re.to_le_bytes());
-                    out.extend_from_slice(&spectrum[i].im.to_le_bytes());
-                }
+        for k in range.clone() {
+            for z in p.fibers.pair(k) {
+                out.extend_from_slice(&z.re.to_le_bytes());
+                out.extend_from_slice(&z.im.to_le_bytes());
             }
         }
         Ok(out)
@@ -192,11 +179,10 @@ impl FitTasks {
             let o = r.u32()?;
             let orbit = p.orbits.get(o).ok_or_else(|| corrupt(format!("no orbit {o}")))?;
             let (lmax, m, dd) = (r.u32()?, r.u32()?, r.u32()?);
-            if lmax != p.lmax || m != p.spectra.len() || dd != d {
+            if lmax != p.lmax || m != p.images || dd != d {
                 return Err(corrupt(format!(
                     "orbit {o}: the answer is for {lmax} generators, {m} images, {dd}-pixel cells; the fit has {}, {}, {d}",
-                    p.lmax,
-                    p.spectra.len()
+                    p.lmax, p.images
                 )));
             }
             let result = read_result(&mut r, orbit, lmax, m, d)?;
@@ -278,31 +264,19 @@ impl TaskSolver {
             self.references = Some(References::new(torus));
         }
         let references = self.references.as_ref().expect("set above");
-        // Each pair's fibers as compact buffers, one per image.
+        // Each pair's kept fibers (image-major, see `pair_fibers`).
         let mut inputs = Vec::with_capacity(header.pairs.len());
         for pair in &header.pairs {
-            let len: usize = pair.iter().map(|&o| orbits[o].points.len()).sum::<usize>() * d;
-            let buffers = (0..m)
-                .map(|_| (0..len).map(|_| r.complex()).collect::<Result<Vec<_>>>())
-                .collect::<Result<Vec<_>>>()?;
-            inputs.push(buffers);
+            let len = kept_len(&sym, &orbits, pair) * m;
+            inputs.push((0..len).map(|_| r.complex()).collect::<Result<Vec<_>>>()?);
         }
         if !r.is_done() {
             return Err(corrupt("bytes left after the last pair"));
         }
-        let fiber_count = lattice.fiber_count();
         let mut answers: Vec<Option<Vec<(usize, OrbitResult)>>> = (0..inputs.len()).map(|_| None).collect();
         for_each_parallel(
             inputs.len(),
-            |k| {
-                let pair = &header.pairs[k];
-                let mut slot = vec![usize::MAX; fiber_count];
-                for (j, &(fiber, _)) in pair.iter().flat_map(|&o| &orbits[o].points).enumerate() {
-                    slot[fiber] = j;
-                }
-                let fibers = Fibers::Local { buffers: &inputs[k], slot: &slot };
-                solve_pair(&sym, &orbits, pair, &fibers, lmax, path, references)
-            },
+            |k| solve_kept_pair(&sym, &orbits, &header.pairs[k], &inputs[k], m, lmax, path, references),
             |k, answer| {
                 answers[k] = Some(answer?);
                 Ok::<(), Error>(())

@@ -51,7 +51,7 @@ fn band_identity_holds_term_by_term() {
     let banded = fit(&stack, &s, &mut Silent).unwrap();
     let sym = Symmetry::new([8, 8], [4, 4], &s.group).unwrap();
     let spectra: Vec<_> = images.iter().map(fft2).collect();
-    let omega = band::select(&sym, &BandSpec::Frequencies(24), &spectra, false).unwrap();
+    let omega = band::select(&sym, &BandSpec::Frequencies(24), &band::power(&spectra), false).unwrap();
     assert_eq!(omega.len(), banded.report.band.as_ref().unwrap().frequencies);
     assert!(omega.len() <= 24);
     // P_Ω F in pixel space, and the energy outside the band in pixel space.
@@ -102,7 +102,7 @@ fn chosen_band_is_optimal_against_brute_force() {
         .collect();
     assert!(orbits.len() <= 16);
     for m in 1..=16 {
-        let omega = band::select(&sym, &BandSpec::Frequencies(m), &spectra, false).unwrap();
+        let omega = band::select(&sym, &BandSpec::Frequencies(m), &band::power(&spectra), false).unwrap();
         let kept: f64 = omega.mask.iter().enumerate().filter(|(_, &b)| b).map(|(k, _)| spectra.iter().map(|s| s[k].norm_sqr()).sum::<f64>()).sum();
         let mut best = 0.0f64;
         for subset in 0u32..(1 << orbits.len()) {
@@ -122,7 +122,7 @@ fn bands_are_invariant_and_radius_bands_are_discs() {
     let sym = Symmetry::new([12, 12], [4, 4], &PlaneGroup::standard(GroupSymbol::P4g)).unwrap();
     let l = sym.lattice();
     for spec in [BandSpec::Frequencies(30), BandSpec::Radius(3.2)] {
-        let omega = band::select(&sym, &spec, &spectra, false).unwrap();
+        let omega = band::select(&sym, &spec, &band::power(&spectra), false).unwrap();
         for k in 0..144 {
             let xi = [k / 12, k % 12];
             for op in sym.ops() {
@@ -131,7 +131,7 @@ fn bands_are_invariant_and_radius_bands_are_discs() {
             assert_eq!(omega.mask[k], omega.mask[l.linear(l.neg(xi))]);
         }
     }
-    let disc = band::select(&sym, &BandSpec::Radius(3.2), &spectra, false).unwrap();
+    let disc = band::select(&sym, &BandSpec::Radius(3.2), &band::power(&spectra), false).unwrap();
     for k in 0..144 {
         let wrap = |v: usize| if v > 6 { v as f64 - 12.0 } else { v as f64 };
         let (a, b) = (wrap(k / 12), wrap(k % 12));
