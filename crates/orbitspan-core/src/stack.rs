@@ -58,6 +58,15 @@ impl Stack {
     /// Builds a stack, checking that it is non-empty, that all images share one
     /// size and that every pixel is finite. Errors name the offending label.
     pub fn new(items: Vec<(String, Image)>) -> Result<Stack> {
+        Self::check(&items)?;
+        let (height, width) = (items[0].1.height, items[0].1.width);
+        let (labels, images) = items.into_iter().unzip();
+        Ok(Stack { height, width, images, labels })
+    }
+
+    /// The checks of [`Stack::new`] without building the stack (the items
+    /// stay with the caller).
+    pub fn check(items: &[(String, Image)]) -> Result<()> {
         let Some((first_label, first)) = items.first() else {
             return Err(Error::input("the stack is empty: add at least one image"));
         };
@@ -66,12 +75,10 @@ impl Stack {
         if height == 0 || width == 0 {
             return Err(Error::file(first_label.clone(), "image has no pixels"));
         }
-        let mut images = Vec::with_capacity(items.len());
-        let mut labels = Vec::with_capacity(items.len());
         for (label, image) in items {
             if image.height != height || image.width != width {
                 return Err(Error::file(
-                    label,
+                    label.clone(),
                     format!(
                         "size {}x{} (height x width) does not match the stack's {}x{} (set by {})",
                         image.height, image.width, height, width, first_label
@@ -80,7 +87,7 @@ impl Stack {
             }
             if let Some(i) = image.pixels.iter().position(|v| !v.is_finite()) {
                 return Err(Error::file(
-                    label,
+                    label.clone(),
                     format!(
                         "pixel at row {}, column {} is {} (not a finite number)",
                         i / width,
@@ -89,10 +96,13 @@ impl Stack {
                     ),
                 ));
             }
-            images.push(image);
-            labels.push(label);
         }
-        Ok(Stack { height, width, images, labels })
+        Ok(())
+    }
+
+    /// The labelled images back (the inverse of [`Stack::new`], no copy).
+    pub fn into_items(self) -> Vec<(String, Image)> {
+        self.labels.into_iter().zip(self.images).collect()
     }
     pub fn height(&self) -> usize {
         self.height

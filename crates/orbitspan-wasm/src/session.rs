@@ -39,7 +39,7 @@ pub struct Session {
 /// lattice what turns its result into the measured fit.
 struct PendingFit {
     tasks: FitTasks,
-    measured: Option<(Measured, MeasuredPlan, Stack)>,
+    measured: Option<(Measured, MeasuredPlan)>,
 }
 
 impl Default for Session {
@@ -208,8 +208,16 @@ impl Session {
             .ok_or_else(|| error(Error::input(format!("no image {index}: the stack has {}", self.images.len()))))
     }
 
-    fn stack(&self) -> JsResult<Stack> {
-        Stack::new(self.images.clone()).map_err(error)
+    /// The stack moved out of the session for one computation, no copy:
+    /// [`Session::put_back`] must follow on every path (the images are
+    /// checked first, so nothing is lost on an error here).
+    fn take_stack(&mut self) -> Result<Stack, Error> {
+        Stack::check(&self.images)?;
+        Stack::new(std::mem::take(&mut self.images))
+    }
+
+    fn put_back(&mut self, stack: Stack) {
+        self.images = stack.into_items();
     }
 
     /// Checks `settings` against the stack's image size (core `fit::validate`).
@@ -280,16 +288,18 @@ impl Session {
 
     /// The lattice of `choice`; a detection is kept until the stack changes.
     fn measure(&mut self, choice: LatticeChoice) -> Result<Measured, Error> {
-        let stack = Stack::new(self.images.clone())?;
+        let stack = self.take_stack()?;
         let cached = &mut self.detection;
-        measured_of(choice, &stack, |stack| {
+        let measured = measured_of(choice, &stack, |stack| {
             if let Some(d) = cached {
                 return Ok(d.clone());
             }
             let d = lattice_detect::detect(stack, &DetectOptions::default())?;
             *cached = Some(d.clone());
             Ok(d)
-        })
+        });
+        self.put_back(stack);
+        measured
     }
 
     /// Measures the stack's lattice (core `lattice_detect::detect`, default
@@ -329,7 +339,7 @@ impl Session {
         }
         let options: Options = from_js(options, "survey options")?;
         let measured = self.measure(options.lattice).map_err(error)?;
-        let stack = self.stack()?;
+        let stack = self.take_stack().map_err(error)?;
         let rows = survey::survey(
             &stack,
             measured.kind.lattice_type(),
@@ -338,8 +348,9 @@ impl Session {
             options.samples,
             options.generators,
             &mut progress_callback(progress),
-        )
-        .map_err(error)?;
+        );
+        self.put_back(stack);
+        let rows = rows.map_err(error)?;
         let out = Object::new();
         set(&out, "lattice", to_js(&measured.info())?);
         set(&out, "generators", options.generators as u32);
@@ -359,12 +370,15 @@ impl Session {
     pub fn fit(&mut self, settings: JsValue, progress: &Function) -> JsResult<JsValue> {
         let page: PageSettings = from_js(settings, "settings")?;
         let settings = page.to_core().map_err(error)?;
-        let stack = self.stack()?;
-        let (result, lattice_fit) = match page.lattice {
-            None => (fit::fit(&stack, &settings, &mut progress_callback(progress)).map_err(error)?, None),
-            Some(choice) => {
-                let measured = self.measure(choice).map_err(error)?;
-                let cell = measured.cell_for(&settings.group).map_err(error)?;
+        let measured = match page.lattice {
+            Some(choice) => Some(self.measure(choice).map_err(error)?),
+            None => None,
+        };
+        let stack = self.take_stack().map_err(error)?;
+        let outcome = (|| match &measured {
+            None => Ok((fit::fit(&stack, &settings, &mut progress_callback(progress))?, None)),
+            Some(measured) => {
+                let cell = measured.cell_for(&settings.group)?;
                 let m = survey::fit_measured(
                     &stack,
                     cell,
@@ -374,12 +388,13 @@ impl Session {
                     settings.band,
                     None,
                     &mut progress_callback(progress),
-                )
-                .map_err(error)?;
-                let info = LatticeFit::new(&measured, &m);
-                (m.fit, Some(info))
+                )?;
+                let info = LatticeFit::new(measured, &m);
+                Ok((m.fit, Some(info)))
             }
-        };
+        })();
+        self.put_back(stack);
+        let (result, lattice_fit) = outcome.map_err(error)?;
         self.keep_fit(result, lattice_fit)
     }
 
@@ -395,22 +410,23 @@ impl Session {
         self.pending = None;
         let page: PageSettings = from_js(settings, "settings")?;
         let settings = page.to_core().map_err(error)?;
-        let stack = self.stack()?;
-        let pending = match page.lattice {
-            None => PendingFit {
-                tasks: FitTasks::new(&stack, &settings, &mut progress_callback(progress)).map_err(error)?,
-                measured: None,
-            },
-            Some(choice) => {
-                let measured = self.measure(choice).map_err(error)?;
-                let cell = measured.cell_for(&settings.group).map_err(error)?;
-                let plan = MeasuredPlan::new(&stack, cell, settings.group, page.samples, settings.generators, settings.band, None)
-                    .map_err(error)?;
-                let tasks =
-                    FitTasks::new(&plan.grid_stack, &plan.settings, &mut progress_callback(progress)).map_err(error)?;
-                PendingFit { tasks, measured: Some((measured, plan, stack)) }
-            }
+        let measured = match page.lattice {
+            Some(choice) => Some(self.measure(choice).map_err(error)?),
+            None => None,
         };
+        let stack = self.take_stack().map_err(error)?;
+        let outcome = (|| match measured {
+            None => Ok(PendingFit { tasks: FitTasks::new(&stack, &settings, &mut progress_callback(progress))?, measured: None }),
+            Some(measured) => {
+                let cell = measured.cell_for(&settings.group)?;
+                let plan =
+                    MeasuredPlan::new(&stack, cell, settings.group, page.samples, settings.generators, settings.band, None)?;
+                let tasks = FitTasks::new(&plan.grid_stack, &plan.settings, &mut progress_callback(progress))?;
+                Ok(PendingFit { tasks, measured: Some((measured, plan)) })
+            }
+        })();
+        self.put_back(stack);
+        let pending = outcome.map_err(error)?;
         let count = pending.tasks.len();
         self.pending = Some(pending);
         Ok(count)
@@ -440,8 +456,10 @@ impl Session {
         let result = pending.tasks.finish(&mut progress_callback(progress)).map_err(error)?;
         match pending.measured {
             None => self.keep_fit(result, None),
-            Some((measured, plan, stack)) => {
+            Some((measured, plan)) => {
+                let stack = self.take_stack().map_err(error)?;
                 let m = plan.finish(&stack, result);
+                self.put_back(stack);
                 let info = LatticeFit::new(&measured, &m);
                 self.keep_fit(m.fit, Some(info))
             }
@@ -653,12 +671,24 @@ impl Session {
     /// hold a grid: applied to images of another size, the message says that
     /// a lattice-grid model needs images on that grid.
     #[wasm_bindgen(js_name = applyModel)]
-    pub fn apply_model(&self, progress: &Function) -> JsResult<JsValue> {
+    pub fn apply_model(&mut self, progress: &Function) -> JsResult<JsValue> {
+        match &self.lattice_fit {
+            Some(info) => {
+                let stack = Stack::new(self.images.iter().map(|(l, i)| (l.clone(), info.grid.to_lattice(i))).collect())
+                    .map_err(error)?;
+                self.apply_to(&stack, progress)
+            }
+            None => {
+                let stack = self.take_stack().map_err(error)?;
+                let errors = self.apply_to(&stack, progress);
+                self.put_back(stack);
+                errors
+            }
+        }
+    }
+
+    fn apply_to(&self, stack: &Stack, progress: &Function) -> JsResult<JsValue> {
         let model = self.current_model()?;
-        let stack = match &self.lattice_fit {
-            Some(info) => Stack::new(self.images.iter().map(|(l, i)| (l.clone(), info.grid.to_lattice(i))).collect()).map_err(error)?,
-            None => self.stack()?,
-        };
         let grid_model = model.settings().lattice_coords;
         let differs = stack.height() != model.height() || stack.width() != model.width();
         if self.lattice_fit.is_none() && grid_model && differs {
@@ -672,7 +702,7 @@ impl Session {
                 stack.width()
             ))));
         }
-        let errors = model.evaluate(&stack, &mut progress_callback(progress)).map_err(error)?;
+        let errors = model.evaluate(stack, &mut progress_callback(progress)).map_err(error)?;
         to_js(&errors)
     }
 
