@@ -23,10 +23,9 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
-use std::sync::OnceLock;
 use crate::fit::{adjoint_product, product, OrbitSolution};
 use crate::prng::SplitMix64;
-use crate::spectrum::{fft2, ifft2_real_owned};
+use crate::spectrum::ifft2_real_owned;
 use crate::stack::Image;
 use nalgebra::DMatrix;
 use num_complex::Complex64;
@@ -38,10 +37,29 @@ pub(crate) struct Generator {
     pub imaginary_part: f64,
 }
 
-/// Fixed reference images `e`: deterministic pseudo-random values, one per seed.
-fn reference_image(n1: usize, n2: usize, which: u64) -> Image {
-    let mut rng = SplitMix64(0x0b17_5ba2_0000_0001 ^ which.wrapping_mul(0x9E37_79B9_7F4A_7C15));
-    Image::new(n1, n2, (0..n1 * n2).map(|_| rng.between(-1.0, 1.0)).collect())
+/// The spectrum of fixed real reference image number `which`, at the
+/// row-major frequency index `i`: deterministic pseudo-random values made
+/// in the frequency domain, one frequency at a time (no transform and no
+/// stored spectrum). Each frequency and its negative share one draw,
+/// `ê(−ξ) = conj ê(ξ)`, and a frequency that is its own negative gets a
+/// real value, so the image is real.
+fn reference_value(torus: [usize; 2], which: u64, i: usize) -> Complex64 {
+    let [n1, n2] = torus;
+    let (a, b) = (i / n2, i % n2);
+    let mirror = ((n1 - a) % n1) * n2 + (n2 - b) % n2;
+    let draw = |k: usize| {
+        let mut rng = SplitMix64(0x0b17_5ba2_0000_0001 ^ which.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ (k as u64).wrapping_mul(0xD1B5_4A32_D192_ED03));
+        (rng.between(-1.0, 1.0), rng.between(-1.0, 1.0))
+    };
+    if i == mirror {
+        Complex64::new(draw(i).0, 0.0)
+    } else if i < mirror {
+        let (re, im) = draw(i);
+        Complex64::new(re, im)
+    } else {
+        let (re, im) = draw(mirror);
+        Complex64::new(re, -im)
+    }
 }
 
 /// How many reference images an orbit may try, and the conditioning
@@ -92,24 +110,20 @@ fn narrow_gram(w: &DMatrix<Complex64>) -> DMatrix<Complex64> {
     out
 }
 
-/// The reference images' spectra on one torus, each made when first
-/// needed (usually only the first).
+/// The reference images on one torus ([`reference_value`]).
 pub(crate) struct References {
     torus: [usize; 2],
-    spectra: Vec<OnceLock<Vec<Complex64>>>,
 }
 
 impl References {
     pub fn new(torus: [usize; 2]) -> References {
-        References { torus, spectra: (0..REFERENCES).map(|_| OnceLock::new()).collect() }
+        References { torus }
     }
-    /// The torus these references are made for.
-    pub fn torus(&self) -> [usize; 2] {
-        self.torus
-    }
-    fn spectrum(&self, which: u64) -> &[Complex64] {
-        let [n1, n2] = self.torus;
-        self.spectra[which as usize].get_or_init(|| fft2(&reference_image(n1, n2, which)))
+    /// `gather` applied to the spectrum of reference `which`.
+    fn gather_into(&self, which: u64, gather: &Gather, out: &mut [Complex64]) {
+        for ((o, &i), &p) in out.iter_mut().zip(&gather.index).zip(&gather.phase) {
+            *o = p * reference_value(self.torus, which, i);
+        }
     }
 }
 
@@ -227,10 +241,9 @@ pub(crate) fn orbit_generators(
             // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
             // project on the layer's basis there, transport back.
             let x = transported[c as usize].get_or_insert_with(|| {
-                let e = references.spectrum(c);
                 let mut x = DMatrix::zeros(d, transports.len());
                 for (j, t) in transports.iter().enumerate() {
-                    t.apply_into(e, x.column_mut(j).as_mut_slice());
+                    references.gather_into(c, t, x.column_mut(j).as_mut_slice());
                 }
                 x
             });

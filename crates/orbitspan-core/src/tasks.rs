@@ -228,12 +228,9 @@ fn read_result(r: &mut Reader, orbit: &Orbit, lmax: usize, m: usize, d: usize) -
     Ok(OrbitResult { layer_energy, tail, image_discarded, layer_dims, generator })
 }
 
-/// Solves tasks; keeps the reference images' spectra from task to task
-/// (they depend only on the image size).
+/// Solves tasks.
 #[derive(Default)]
-pub struct TaskSolver {
-    references: Option<References>,
-}
+pub struct TaskSolver {}
 
 impl TaskSolver {
     pub fn new() -> TaskSolver {
@@ -259,11 +256,7 @@ impl TaskSolver {
                 return Err(corrupt(format!("no orbit {o}: there are {}", orbits.len())));
             }
         }
-        let torus = lattice.torus();
-        if self.references.as_ref().map(References::torus) != Some(torus) {
-            self.references = Some(References::new(torus));
-        }
-        let references = self.references.as_ref().expect("set above");
+        let references = &References::new(lattice.torus());
         // Each pair's kept fibers (image-major, see `pair_fibers`).
         let mut inputs = Vec::with_capacity(header.pairs.len());
         for pair in &header.pairs {
