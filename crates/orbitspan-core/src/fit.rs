@@ -528,7 +528,10 @@ pub(crate) fn solve_orbit(
             .iter()
             .map(|&h| sym.fiber_unitary(orbit.rep, h))
             .collect::<Result<Vec<_>>>()?;
-        let c0 = pooled_covariance(&point_gathers, spectra);
+        let c0 = match mirror_halves(sym, orbit, fibers, &point_gathers) {
+            Some((primary, twist)) => with_mirror_half(pooled_covariance(&primary, spectra), &twist),
+            None => pooled_covariance(&point_gathers, spectra),
+        };
         (symmetrised(&c0, &ops) * Complex64::new(1.0 / hsize, 0.0), ops, None)
     };
     let n = x.nrows();
@@ -620,6 +623,58 @@ pub(crate) fn solve_orbit(
     };
     let image_discarded = per_image_discarded(&point_gathers, spectra, &discard);
     Ok(OrbitSolution { layer_energy, tail, layers, image_discarded })
+}
+
+/// For a point group holding the half turn `−I` and an orbit whose
+/// stabiliser does not, the orbit's points come in mirror couples `p`,
+/// `p' = (−I)p`, and for real images the fiber vector of the element
+/// `q = (−I) g_p` (a representative of `p'`'s coset) is
+/// `v_q = D conj(v_p)` with the diagonal `D_η = phase_q(η) phase_p(η)`
+/// (its gather reads `f̂(−ζ) = conj f̂(ζ)` where `p`'s reads `f̂(ζ)`), the
+/// same `D` for every couple up to a unimodular constant (which cancels in
+/// `v vᴴ`). Then the pooled covariance over the points is
+/// `A + D conj(A) Dᴴ` with `A` pooled over one point of each couple: half
+/// the products. Returns the gathers of those points and `D`, or `None`
+/// when the orbit has no such couples (or, defensively, when the twists of
+/// two couples differ by more than a constant).
+fn mirror_halves(sym: &Symmetry, orbit: &Orbit, fibers: &Fibers, point_gathers: &[Gather]) -> Option<(Vec<Gather>, Vec<Complex64>)> {
+    let minus = sym.ops().iter().position(|o| o.g == [[-1, 0], [0, -1]])?;
+    if orbit.stabiliser.contains(&minus) {
+        return None;
+    }
+    let l = sym.lattice();
+    let mut primary = Vec::new();
+    let mut twist: Option<Vec<Complex64>> = None;
+    for (j, &(_, op)) in orbit.points.iter().enumerate() {
+        let q = sym.product(minus, op);
+        let mirror = l.fiber_of(l.dual_action(&sym.ops()[q].g, orbit.rep));
+        let k = orbit.points.iter().position(|&(f, _)| f == mirror)?;
+        if k == j {
+            return None;
+        }
+        if j > k {
+            continue;
+        }
+        let gq = fibers.gather(sym, orbit.rep, q);
+        let d: Vec<Complex64> = gq.phase.iter().zip(&point_gathers[j].phase).map(|(a, b)| a * b).collect();
+        match &twist {
+            None => twist = Some(d),
+            Some(first) => {
+                let c = d[0] / first[0];
+                if d.iter().zip(first).any(|(a, b)| (a / b - c).norm() > 1e-9) {
+                    return None;
+                }
+            }
+        }
+        primary.push(point_gathers[j].clone());
+    }
+    twist.map(|t| (primary, t))
+}
+
+/// `A + D conj(A) Dᴴ` for a diagonal `D` (see [`mirror_halves`]).
+fn with_mirror_half(a: DMatrix<Complex64>, twist: &[Complex64]) -> DMatrix<Complex64> {
+    let n = a.nrows();
+    DMatrix::from_fn(n, n, |r, c| a[(r, c)] + twist[r] * a[(r, c)].conj() * twist[c].conj())
 }
 
 /// `Σ_h U_h C U_hᴴ` for monomial `U_h`:
