@@ -694,8 +694,9 @@ fn symmetrised(c: &DMatrix<Complex64>, ops: &[Monomial]) -> DMatrix<Complex64> {
 }
 
 /// Orthonormalises the kept vectors layer by layer: against all earlier
-/// layers together by block classical Gram–Schmidt run twice (matrix
-/// products; the earlier layers are the same for every `lmax`), then
+/// layers together by block classical Gram–Schmidt, run twice when the
+/// first pass cancels much of a vector (matrix products; the earlier layers
+/// are the same for every `lmax`), then
 /// within the layer by modified Gram–Schmidt run twice. The Gram path's
 /// `Y v / ||Y v||` loses orthogonality for small eigenvalues. Layer `l`
 /// depends only on layers `< l`, so the layers stay nested.
@@ -711,9 +712,17 @@ fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep
         }
         let mut v = DMatrix::from_columns(&cols);
         if let Some((pa, pb)) = &earlier_parts {
-            for _ in 0..2 {
+            // A second pass only when the first cancelled much of a column
+            // (the criterion of Daniel, Gragg, Kaufman and Stewart, 1976):
+            // otherwise one pass leaves it orthogonal to round-off.
+            let before: Vec<f64> = v.column_iter().map(|c| c.norm()).collect();
+            for pass in 0..2 {
                 let c = adjoint_product_parts(pa, pb, &v);
                 v -= product_parts(pa, pb, &c);
+                let cancelled = v.column_iter().zip(&before).any(|(c, &b)| c.norm() < b * std::f64::consts::FRAC_1_SQRT_2);
+                if pass == 0 && !cancelled {
+                    break;
+                }
             }
         }
         let mut q: Vec<DVector<Complex64>> = Vec::with_capacity(v.ncols());
