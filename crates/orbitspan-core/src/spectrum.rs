@@ -9,15 +9,23 @@ use crate::stack::Image;
 use num_complex::Complex64;
 use rustfft::FftPlanner;
 
+thread_local! {
+    /// Per thread, one planner: it keeps the plans (twiddle factors) of the
+    /// sizes already used, so a stack of equally sized images plans once.
+    static PLANNER: std::cell::RefCell<FftPlanner<f64>> = std::cell::RefCell::new(FftPlanner::new());
+}
+
 /// Forward unnormalised 2-D DFT of a complex row-major `n1 x n2` array, in place.
 pub fn fft2_in_place(data: &mut [Complex64], n1: usize, n2: usize, inverse: bool) {
     assert_eq!(data.len(), n1 * n2);
-    let mut planner = FftPlanner::<f64>::new();
-    let (row, col) = if inverse {
-        (planner.plan_fft_inverse(n2), planner.plan_fft_inverse(n1))
-    } else {
-        (planner.plan_fft_forward(n2), planner.plan_fft_forward(n1))
-    };
+    let (row, col) = PLANNER.with(|planner| {
+        let mut planner = planner.borrow_mut();
+        if inverse {
+            (planner.plan_fft_inverse(n2), planner.plan_fft_inverse(n1))
+        } else {
+            (planner.plan_fft_forward(n2), planner.plan_fft_forward(n1))
+        }
+    });
     row.process(data);
     let mut column = vec![Complex64::new(0.0, 0.0); n1];
     for c in 0..n2 {

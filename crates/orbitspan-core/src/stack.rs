@@ -35,10 +35,15 @@ impl Image {
     pub fn shifted(&self, shift_rows: usize, shift_cols: usize) -> Image {
         let (h, w) = (self.height, self.width);
         let mut out = vec![0.0; h * w];
+        let sc = shift_cols % w;
         for r in 0..h {
-            for c in 0..w {
-                out[((r + shift_rows) % h) * w + (c + shift_cols) % w] = self.pixels[r * w + c];
-            }
+            // Row r moves to row r + shift_rows; within it, columns
+            // 0..w−sc move right by sc and the last sc wrap to the front.
+            let src = &self.pixels[r * w..(r + 1) * w];
+            let row = (r + shift_rows) % h;
+            let dst = &mut out[row * w..(row + 1) * w];
+            dst[sc..].copy_from_slice(&src[..w - sc]);
+            dst[..sc].copy_from_slice(&src[w - sc..]);
         }
         Image::new(h, w, out)
     }
@@ -197,5 +202,16 @@ mod tests {
         let img = Image::new(2, 3, vec![1., 2., 3., 4., 5., 6.]);
         let s = img.shifted(1, 1);
         assert_eq!(s.pixels, vec![6., 4., 5., 3., 1., 2.]);
+        // Every shift, including none and more than the size, against the
+        // definition out(x) = in(x − shift) pixel by pixel.
+        let img = Image::new(4, 5, (0..20).map(f64::from).collect());
+        for (sr, sc) in [(0, 0), (0, 3), (2, 0), (3, 4), (5, 7), (8, 10)] {
+            let s = img.shifted(sr, sc);
+            for r in 0..4 {
+                for c in 0..5 {
+                    assert_eq!(s.at((r + sr) % 4, (c + sc) % 5), img.at(r, c), "shift {sr},{sc}");
+                }
+            }
+        }
     }
 }
