@@ -197,6 +197,15 @@ fn gram_and_covariance_paths_agree() {
         (GroupSymbol::Cmm, [8, 8], [4, 4], 1),
         (GroupSymbol::P6m, [12, 12], [4, 4], 1),
         (GroupSymbol::Pg, [4, 4], [2, 2], 5),
+        // Larger tori: orbits with a trivial stabiliser, where the
+        // covariance path pools half of each mirror couple and, for the
+        // groups with glides (pmg, pgg, p4g), untwists a non-trivial phase
+        // before a real eigen-decomposition (fit::hermitian_eigen).
+        (GroupSymbol::Pmg, [24, 24], [4, 4], 2),
+        (GroupSymbol::Pgg, [24, 24], [4, 4], 2),
+        (GroupSymbol::P4g, [24, 24], [4, 4], 2),
+        (GroupSymbol::Pmm, [20, 16], [4, 4], 2),
+        (GroupSymbol::P2, [15, 15], [3, 3], 1),
     ] {
         let images: Vec<Image> = (0..m).map(|_| rng.image(n)).collect();
         let stack = stack_of(&images);
@@ -205,6 +214,9 @@ fn gram_and_covariance_paths_agree() {
         let b = fit_with_path(&stack, &s, FiberPath::Gram, &mut Silent).unwrap();
         for (p, q) in a.report.error_curve.iter().zip(&b.report.error_curve) {
             assert!((p.error - q.error).abs() < 1e-10 * a.report.total_energy, "{symbol:?}: {} vs {}", p.error, q.error);
+        }
+        for (p, q) in a.report.images.iter().zip(&b.report.images) {
+            assert!((p.error - q.error).abs() < 1e-10 * p.energy, "{symbol:?} {}: {} vs {}", p.file, p.error, q.error);
         }
         for (g, h) in a.model.generators().iter().zip(b.model.generators()) {
             let diff = g.pixels.iter().zip(&h.pixels).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max);
