@@ -213,7 +213,7 @@ impl Prepared {
             None => None,
         };
         let (done, total) = if by_power { (m, 2 * m) } else { (0, m) };
-        let mut fibers = PairFibers::new(&sym, &orbits, &pairs);
+        let mut fibers = PairFibers::new(&sym, &orbits, &pairs, m);
         let mut outside_per_image = vec![0.0; m];
         for (i, img) in stack.images().iter().enumerate() {
             check(progress, "transforming images", (done + i) as f64 / total as f64)?;
@@ -248,7 +248,7 @@ impl Prepared {
     /// the result does not depend on where or in which order orbits were
     /// solved.
     pub fn finish(mut self, collected: Collected, progress: &mut dyn Progress) -> Result<Fit> {
-        self.fibers = PairFibers::new(&self.sym, &self.orbits, &[]);
+        self.fibers = PairFibers::new(&self.sym, &self.orbits, &[], 0);
         let missing = collected.missing();
         if missing > 0 {
             return Err(Error::Internal(format!("{missing} of {} frequency orbits have no result", collected.results.len())));

@@ -49,8 +49,9 @@ pub(crate) struct PairFibers {
 }
 
 impl PairFibers {
-    /// Empty storage for `pairs`.
-    pub fn new(sym: &Symmetry, orbits: &[Orbit], pairs: &[Vec<usize>]) -> PairFibers {
+    /// Empty storage for `pairs`, with room for `images` images (reserved
+    /// exactly: no growth by doubling, no copies while filling).
+    pub fn new(sym: &Symmetry, orbits: &[Orbit], pairs: &[Vec<usize>], images: usize) -> PairFibers {
         let l = sym.lattice();
         let dual = l.dual();
         let indices: Vec<Vec<u32>> = pairs
@@ -69,7 +70,7 @@ impl PairFibers {
                     .collect()
             })
             .collect();
-        PairFibers { data: indices.iter().map(|_| Vec::new()).collect(), indices }
+        PairFibers { data: indices.iter().map(|i| Vec::with_capacity(i.len() * images)).collect(), indices }
     }
 
     /// Appends one image's (whole) spectrum.
@@ -200,7 +201,7 @@ mod tests {
             let spectra: Vec<Vec<Complex64>> = (0..3)
                 .map(|_| fft2(&Image::new(n[0], n[1], (0..n[0] * n[1]).map(|_| rng.between(-1.0, 1.0)).collect())))
                 .collect();
-            let mut store = PairFibers::new(&sym, &orbits, &pairs);
+            let mut store = PairFibers::new(&sym, &orbits, &pairs, spectra.len());
             for s in &spectra {
                 store.push(s);
             }
