@@ -549,6 +549,8 @@ pub(crate) fn solve_orbit(
     // Per block: its eigenvectors, and which were kept (by layer) or not.
     let mut decompositions = Vec::with_capacity(blocks.len());
     let mut kept_count = 0;
+    // The energy of the eigenvectors not kept: Σ_i (image i's discarded energy).
+    let mut left_out = 0.0;
     // A trivial stabiliser gives one block with the identity as basis.
     let whole = blocks.len() == 1 && ops.len() <= 1;
     for b in &blocks {
@@ -586,6 +588,11 @@ pub(crate) fn solve_orbit(
             }
         }
         kept_count += groups.iter().map(|g| g.1.len()).sum::<usize>();
+        let mut kept = vec![false; eig.eigenvalues.len()];
+        for &e in groups.iter().flat_map(|g| &g.1) {
+            kept[e] = true;
+        }
+        left_out += (0..kept.len()).filter(|&e| !kept[e]).map(|e| eig.eigenvalues[e].max(0.0)).sum::<f64>();
         decompositions.push((eig, groups));
     }
     for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
@@ -608,9 +615,15 @@ pub(crate) fn solve_orbit(
         }
     }
     let layers = orthonormal_layers(layer_vectors, d, orbit.rep)?;
-    // Per-image discarded energy with all lmax layers: through the
-    // complement (the eigenvectors not kept) when it is the smaller space
-    // and known (covariance path), else energy minus the captured part.
+    // Per-image discarded energy with all lmax layers. The images' shares
+    // are non-negative and sum to the energy left out, so when that is
+    // round-off (every eigenvalue above it kept) each share is zero to
+    // that level. Otherwise through the complement (the eigenvectors not
+    // kept) when it is the smaller space and known (covariance path), else
+    // energy minus the captured part.
+    if left_out <= tol {
+        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded: vec![0.0; m] });
+    }
     let discard = if y.is_none() && d - kept_count < kept_count {
         let mut columns = Vec::with_capacity(d - kept_count);
         for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
