@@ -31,9 +31,12 @@ test('a corrupt file gets a message and the good files fit', async () => {
     await screenshot(page, '03-corrupt-file');
 
     // The good ones fit (the cell defaults to the whole image: plain p1).
+    // One generator for three images: each image keeps a positive error
+    // (with as many generators as images the fit would be exact).
     await page.selectOption('#group', 'p4m');
     await page.fill('#cell-rows', '16');
     await page.fill('#cell-cols', '16');
+    await page.fill('#generators', '1');
     await page.waitForFunction(() => !document.getElementById('fit').disabled);
     await page.click('#fit');
     await waitForFit(page);
