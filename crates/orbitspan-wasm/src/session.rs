@@ -368,12 +368,7 @@ impl Session {
     /// report's curve and per-image errors are then on the lattice grid. A
     /// group the lattice type does not allow is refused with the reason.
     pub fn fit(&mut self, settings: JsValue, progress: &Function) -> JsResult<JsValue> {
-        let page: PageSettings = from_js(settings, "settings")?;
-        let settings = page.to_core().map_err(error)?;
-        let measured = match page.lattice {
-            Some(choice) => Some(self.measure(choice).map_err(error)?),
-            None => None,
-        };
+        let (page, settings, measured) = self.fit_inputs(settings)?;
         let stack = self.take_stack().map_err(error)?;
         let outcome = (|| match &measured {
             None => Ok((fit::fit(&stack, &settings, &mut progress_callback(progress))?, None)),
@@ -408,12 +403,7 @@ impl Session {
     #[wasm_bindgen(js_name = fitBegin)]
     pub fn fit_begin(&mut self, settings: JsValue, progress: &Function) -> JsResult<usize> {
         self.pending = None;
-        let page: PageSettings = from_js(settings, "settings")?;
-        let settings = page.to_core().map_err(error)?;
-        let measured = match page.lattice {
-            Some(choice) => Some(self.measure(choice).map_err(error)?),
-            None => None,
-        };
+        let (page, settings, measured) = self.fit_inputs(settings)?;
         let stack = self.take_stack().map_err(error)?;
         let outcome = (|| match measured {
             None => Ok(PendingFit { tasks: FitTasks::new(&stack, &settings, &mut progress_callback(progress))?, measured: None }),
@@ -470,6 +460,18 @@ impl Session {
     #[wasm_bindgen(js_name = fitAbort)]
     pub fn fit_abort(&mut self) {
         self.pending = None;
+    }
+
+    /// The page's settings, the core's, and the measured lattice when the
+    /// settings ask for one (shared by `fit` and `fitBegin`).
+    fn fit_inputs(&mut self, settings: JsValue) -> JsResult<(PageSettings, FitSettings, Option<Measured>)> {
+        let page: PageSettings = from_js(settings, "settings")?;
+        let settings = page.to_core().map_err(error)?;
+        let measured = match page.lattice {
+            Some(choice) => Some(self.measure(choice).map_err(error)?),
+            None => None,
+        };
+        Ok((page, settings, measured))
     }
 
     fn pending_fit(&self) -> JsResult<&PendingFit> {
