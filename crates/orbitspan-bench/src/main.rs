@@ -3,7 +3,7 @@
 //! test, on three invented workloads made from a fixed seed (issue 5).
 //!
 //! ```text
-//! cargo run --release -p orbitspan-bench [-- --quick] [--reps N] [--only W1,W3]
+//! cargo run --release -p orbitspan-bench [-- --quick] [--reps N] [--only W1,W3,dense]
 //!     [--write-files DIR] [--browser DIR]
 //! ```
 //! (or `cargo xtask bench`, which also runs the browser side). `--write-files`
@@ -30,7 +30,7 @@ use workload::Workload;
 #[global_allocator]
 static ALLOCATOR: memory::Counting = memory::Counting;
 
-const USAGE: &str = "usage: orbitspan-bench [--quick] [--reps N] [--only W1,W2,W3] [--write-files DIR] [--browser DIR]";
+const USAGE: &str = "usage: orbitspan-bench [--quick] [--reps N] [--only W1,W2,W3,dense] [--write-files DIR] [--browser DIR]";
 
 struct Options {
     quick: bool,
@@ -51,7 +51,7 @@ fn parse(args: &[String]) -> Result<Options, String> {
                 o.reps = v.parse().ok().filter(|&n: &usize| n >= 1).ok_or(format!("--reps: '{v}' is not a positive whole number"))?;
             }
             "--only" => {
-                let v = it.next().ok_or("--only needs workload names, e.g. W1,W3")?;
+                let v = it.next().ok_or("--only needs workload names, e.g. W1,W3 or dense")?;
                 o.only = Some(v.split(',').map(|s| s.trim().to_uppercase()).collect());
             }
             "--write-files" => o.write_files = Some(it.next().ok_or("--write-files needs a directory")?.into()),
@@ -459,7 +459,10 @@ fn main() {
             workloads.push(measure(&w, options.reps));
         }
     }
-    let dense: Vec<DenseResult> = workload::dense_cases().iter().map(|w| measure_dense(w, options.reps)).collect();
+    let dense: Vec<DenseResult> = match wanted("DENSE") {
+        true => workload::dense_cases().iter().map(|w| measure_dense(w, options.reps)).collect(),
+        false => Vec::new(),
+    };
     let results = Results {
         quick: options.quick,
         repetitions: options.reps,

@@ -511,7 +511,9 @@ pub(crate) fn solve_orbit(
         FiberPath::Gram => true,
     };
     let point_gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| fibers.gather(sym, orbit.rep, op)).collect();
-    let mut twist: Option<Vec<Complex64>> = None;
+    // Trivial stabiliser with mirror couples: the untwisted covariance
+    // `C' = Sᴴ C S` (real symmetric) and `S`, and the couples' first points.
+    let mut untwisted: Option<(DMatrix<f64>, Vec<Complex64>, Vec<Gather>)> = None;
     let (x, ops, y) = if use_gram {
         let gathers: Vec<Gather> = (0..gcount).map(|g| fibers.gather(sym, orbit.rep, g)).collect();
         let mut y = DMatrix::<Complex64>::zeros(d, gcount * m);
@@ -529,19 +531,31 @@ pub(crate) fn solve_orbit(
             .iter()
             .map(|&h| sym.fiber_unitary(orbit.rep, h))
             .collect::<Result<Vec<_>>>()?;
-        let c0 = match mirror_halves(sym, orbit, fibers, &point_gathers) {
+        let x = match mirror_halves(sym, orbit, fibers, &point_gathers) {
             Some((primary, d)) => {
-                let c = with_mirror_half(pooled_covariance(&primary, spectra), &d);
-                twist = Some(d);
-                c
+                let s: Vec<Complex64> = d.iter().map(|z| z.sqrt()).collect();
+                let real = untwisted_covariance(&primary, spectra, &s);
+                if ops.len() <= 1 {
+                    // Decomposed as it is (below); no complex matrix is made.
+                    untwisted = Some((real, s, primary));
+                    DMatrix::zeros(0, 0)
+                } else {
+                    symmetrised(&retwisted(&real, &s), &ops) * Complex64::new(1.0 / hsize, 0.0)
+                }
             }
-            None => pooled_covariance(&point_gathers, spectra),
+            None => symmetrised(&pooled_covariance(&point_gathers, spectra), &ops) * Complex64::new(1.0 / hsize, 0.0),
         };
-        (symmetrised(&c0, &ops) * Complex64::new(1.0 / hsize, 0.0), ops, None)
+        (x, ops, None)
     };
-    let n = x.nrows();
+    let n = match &untwisted {
+        Some((real, ..)) => real.nrows(),
+        None => x.nrows(),
+    };
     let blocks = isotypic_blocks(n, &ops)?;
-    let trace: f64 = (0..n).map(|i| x[(i, i)].re).sum();
+    let trace: f64 = match &untwisted {
+        Some((real, ..)) => real.trace(),
+        None => (0..n).map(|i| x[(i, i)].re).sum(),
+    };
     let tol = 1e-12 * trace;
     let mut layer_energy = vec![0.0; lmax];
     let mut tail = 0.0;
@@ -554,10 +568,13 @@ pub(crate) fn solve_orbit(
     // A trivial stabiliser gives one block with the identity as basis.
     let whole = blocks.len() == 1 && ops.len() <= 1;
     for b in &blocks {
-        let eig = if whole {
-            hermitian_eigen(x.clone(), twist.as_deref())
+        let eig = if let Some((real, s, _)) = &untwisted {
+            assert!(whole, "a trivial stabiliser has one isotypic block");
+            untwisted_eigen(real.clone(), s)
+        } else if whole {
+            hermitian_eigen(x.clone())
         } else {
-            hermitian_eigen(adjoint_product(&b.basis, &product(&x, &b.basis)), None)
+            hermitian_eigen(adjoint_product(&b.basis, &product(&x, &b.basis)))
         };
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
@@ -645,7 +662,14 @@ pub(crate) fn solve_orbit(
             layers.iter().flat_map(|q| q.column_iter().map(|c| c.into_owned())).collect();
         Discard::Captured(if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) })
     };
-    let image_discarded = per_image_discarded(&point_gathers, spectra, &discard);
+    // With the untwisted decomposition every eigenvector `e = S u` (`u`
+    // real) is fixed by `J v = D conj(v)`, so the projector onto the kept
+    // space commutes with `J`, and `v_{p'} = c J v_p` (`|c| = 1`) loses as
+    // much as `v_p`: the couples' first points, counted twice.
+    let image_discarded = match &untwisted {
+        Some((.., primary)) => per_image_discarded(primary, spectra, &discard).into_iter().map(|e| 2.0 * e).collect(),
+        None => per_image_discarded(&point_gathers, spectra, &discard),
+    };
     Ok(OrbitSolution { layer_energy, tail, layers, image_discarded })
 }
 
@@ -701,32 +725,26 @@ struct Eigen {
     eigenvectors: DMatrix<Complex64>,
 }
 
-/// The eigen-decomposition of a Hermitian `C`. With the twist `D` of
-/// [`mirror_halves`] (`C = D conj(C) Dᴴ`), `C' = Sᴴ C S` with `S = D^{1/2}`
-/// (diagonal, `|S| = 1`) equals its conjugate, so it is real symmetric: its
-/// real decomposition `C' = U Λ Uᵀ` gives `C = (S U) Λ (S U)ᴴ`, about four
-/// times less arithmetic than the complex one. Falls back to the complex
-/// decomposition if `C'` is not real to round-off.
-fn hermitian_eigen(c: DMatrix<Complex64>, twist: Option<&[Complex64]>) -> Eigen {
-    if let Some(d) = twist {
-        let s: Vec<Complex64> = d.iter().map(|z| z.sqrt()).collect();
-        let n = c.nrows();
-        let turned = DMatrix::from_fn(n, n, |a, b| s[a].conj() * c[(a, b)] * s[b]);
-        let scale = turned.iter().fold(0.0f64, |m, z| m.max(z.norm()));
-        if turned.iter().all(|z| z.im.abs() <= 1e-12 * scale) {
-            let real = nalgebra::SymmetricEigen::new(turned.map(|z| z.re));
-            let eigenvectors = DMatrix::from_fn(n, n, |a, e| s[a] * real.eigenvectors[(a, e)]);
-            return Eigen { eigenvalues: real.eigenvalues, eigenvectors };
-        }
-    }
+/// The eigen-decomposition of a Hermitian `C`.
+fn hermitian_eigen(c: DMatrix<Complex64>) -> Eigen {
     let eig = nalgebra::SymmetricEigen::new(c);
     Eigen { eigenvalues: eig.eigenvalues, eigenvectors: eig.eigenvectors }
 }
 
-/// `A + D conj(A) Dᴴ` for a diagonal `D` (see [`mirror_halves`]).
-fn with_mirror_half(a: DMatrix<Complex64>, twist: &[Complex64]) -> DMatrix<Complex64> {
-    let n = a.nrows();
-    DMatrix::from_fn(n, n, |r, c| a[(r, c)] + twist[r] * a[(r, c)].conj() * twist[c].conj())
+/// The eigen-decomposition of `C = S C' Sᴴ` from the real symmetric `C'`
+/// of [`untwisted_covariance`]: `C' = U Λ Uᵀ` gives `C = (S U) Λ (S U)ᴴ`,
+/// about four times less arithmetic than the complex decomposition.
+fn untwisted_eigen(real: DMatrix<f64>, s: &[Complex64]) -> Eigen {
+    let n = real.nrows();
+    let eig = nalgebra::SymmetricEigen::new(real);
+    let eigenvectors = DMatrix::from_fn(n, n, |a, e| s[a] * eig.eigenvectors[(a, e)]);
+    Eigen { eigenvalues: eig.eigenvalues, eigenvectors }
+}
+
+/// `C = S C' Sᴴ` for a diagonal `S` (see [`untwisted_covariance`]).
+fn retwisted(real: &DMatrix<f64>, s: &[Complex64]) -> DMatrix<Complex64> {
+    let n = real.nrows();
+    DMatrix::from_fn(n, n, |a, b| s[a] * real[(a, b)] * s[b].conj())
 }
 
 /// `Σ_h U_h C U_hᴴ` for monomial `U_h`:
@@ -877,6 +895,46 @@ pub(crate) fn pooled_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>]) 
     DMatrix::from_fn(d, d, |r, c| Complex64::new(re[(r, c)], cross[(r, c)] - cross[(c, r)]))
 }
 
+/// The untwisted covariance of an orbit's mirror couples (see
+/// [`mirror_halves`]): with `A = Σ v vᴴ` pooled over one point of each
+/// couple and all images, the couples' covariance is
+/// `C = A + D conj(A) Dᴴ`, and with `S = D^{1/2}` (diagonal, `|S| = 1`,
+/// `s` here) `C' = Sᴴ C S = W Wᴴ + conj(W Wᴴ) = 2 Re(W Wᴴ)` for the
+/// vectors `w = Sᴴ v`. With `W = P + iQ` that is `2 (P Pᵀ + Q Qᵀ)`: one
+/// real matrix product of `[P Q]` with its transpose per block of
+/// [`POOL_BLOCK`] vectors, of which only the lower block triangle (rows
+/// split in two) is multiplied out — half the products of
+/// [`pooled_covariance`] for the same vectors.
+pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>], s: &[Complex64]) -> DMatrix<f64> {
+    let d = s.len();
+    // Per gather, the phases times conj(S).
+    let phases: Vec<Vec<Complex64>> = gathers.iter().map(|g| g.phase.iter().zip(s).map(|(p, t)| p * t.conj()).collect()).collect();
+    let pairs: Vec<(usize, &Vec<Complex64>)> = (0..gathers.len()).flat_map(|g| spectra.iter().map(move |sp| (g, sp))).collect();
+    let mut out = DMatrix::<f64>::zeros(d, d);
+    let h = d / 2;
+    for chunk in pairs.chunks(POOL_BLOCK) {
+        let mut w = DMatrix::<f64>::zeros(d, 2 * chunk.len());
+        for (c, &(g, sp)) in chunk.iter().enumerate() {
+            for (k, (&i, &p)) in gathers[g].index.iter().zip(&phases[g]).enumerate() {
+                let v = p * sp[i];
+                w[(k, 2 * c)] = v.re;
+                w[(k, 2 * c + 1)] = v.im;
+            }
+        }
+        let wt = w.transpose();
+        // Lower block triangle of 2 W Wᵀ: [0,0], [1,0], [1,1].
+        out.view_mut((0, 0), (h, h)).gemm(2.0, &w.rows(0, h), &wt.columns(0, h), 1.0);
+        out.view_mut((h, 0), (d - h, h)).gemm(2.0, &w.rows(h, d - h), &wt.columns(0, h), 1.0);
+        out.view_mut((h, h), (d - h, d - h)).gemm(2.0, &w.rows(h, d - h), &wt.columns(h, d - h), 1.0);
+    }
+    for a in 0..h {
+        for b in h..d {
+            out[(a, b)] = out[(b, a)];
+        }
+    }
+    out
+}
+
 /// The Gram matrix `Yᴴ Y = (AᵀA + BᵀB) + i (AᵀB − (AᵀB)ᵀ)` of `Y = A + iB`, from `(A, B)`.
 pub(crate) fn gram(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<Complex64> {
     let (at, bt) = (a.transpose(), b.transpose());
@@ -925,4 +983,52 @@ pub(crate) fn adjoint_product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMat
 pub(crate) fn adjoint_product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
     let (a, b) = split(x);
     adjoint_product_parts(&a, &b, y)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::prng::SplitMix64;
+
+    fn unimodular(rng: &mut SplitMix64) -> Complex64 {
+        Complex64::from_polar(1.0, rng.between(-std::f64::consts::PI, std::f64::consts::PI))
+    }
+
+    /// The untwisted covariance against its definition, formed the slow way:
+    /// `A = Σ v vᴴ` over every gather and spectrum, `C = A + D conj(A) Dᴴ`
+    /// with `D = S²`, and `C' = Sᴴ C S` entry by entry. Odd and even `d`
+    /// (the block split), more vectors than one pooling block.
+    #[test]
+    fn untwisted_covariance_matches_its_definition() {
+        let mut rng = SplitMix64(7);
+        for (d, len, gathers, images) in [(1, 3, 2, 2), (7, 20, 3, 5), (12, 40, 2, 300)] {
+            let spectra: Vec<Vec<Complex64>> =
+                (0..images).map(|_| (0..len).map(|_| Complex64::new(rng.normal(), rng.normal())).collect()).collect();
+            let gathers: Vec<Gather> = (0..gathers)
+                .map(|_| Gather {
+                    index: (0..d).map(|_| (rng.next_u64() % len as u64) as usize).collect(),
+                    phase: (0..d).map(|_| unimodular(&mut rng)).collect(),
+                })
+                .collect();
+            let s: Vec<Complex64> = (0..d).map(|_| unimodular(&mut rng)).collect();
+            let mut a = DMatrix::<Complex64>::zeros(d, d);
+            for g in &gathers {
+                for sp in &spectra {
+                    let v = DVector::from_vec(g.apply(sp));
+                    a += &v * v.adjoint();
+                }
+            }
+            let fast = untwisted_covariance(&gathers, &spectra, &s);
+            let scale = a.iter().fold(0.0f64, |m, z| m.max(z.norm()));
+            for r in 0..d {
+                for c in 0..d {
+                    let (dr, dc) = (s[r] * s[r], s[c] * s[c]);
+                    let full = a[(r, c)] + dr * a[(r, c)].conj() * dc.conj();
+                    let slow = s[r].conj() * full * s[c];
+                    assert!(slow.im.abs() <= 1e-12 * scale, "d = {d}: C' is not real at ({r}, {c})");
+                    assert!((fast[(r, c)] - slow.re).abs() <= 1e-12 * scale, "d = {d}: ({r}, {c}): {} vs {}", fast[(r, c)], slow.re);
+                }
+            }
+        }
+    }
 }

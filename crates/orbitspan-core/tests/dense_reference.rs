@@ -200,7 +200,8 @@ fn gram_and_covariance_paths_agree() {
         // Larger tori: orbits with a trivial stabiliser, where the
         // covariance path pools half of each mirror couple and, for the
         // groups with glides (pmg, pgg, p4g), untwists a non-trivial phase
-        // before a real eigen-decomposition (fit::hermitian_eigen).
+        // before a real eigen-decomposition (fit::untwisted_covariance,
+        // fit::untwisted_eigen; per-image errors from half the points).
         (GroupSymbol::Pmg, [24, 24], [4, 4], 2),
         (GroupSymbol::Pgg, [24, 24], [4, 4], 2),
         (GroupSymbol::P4g, [24, 24], [4, 4], 2),
