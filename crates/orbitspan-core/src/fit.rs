@@ -641,6 +641,25 @@ pub(crate) fn solve_orbit(
     if left_out <= tol {
         return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded: vec![0.0; m] });
     }
+    // With the untwisted decomposition every eigenvector `e = S u` (`u`
+    // real) is fixed by `J v = D conj(v)`, so the projector onto the kept
+    // space commutes with `J`, and `v_{p'} = c J v_p` (`|c| = 1`) loses as
+    // much as `v_p`: the couples' first points, counted twice, with the
+    // real vectors `u` against `w = Sᴴ v` (one real product, not four).
+    if let Some((_, s, primary)) = &untwisted {
+        let (eig, groups) = &decompositions[0];
+        let real = eig.untwisted.as_ref().expect("the untwisted decomposition keeps its real eigenvectors");
+        let mut kept = vec![false; eig.eigenvalues.len()];
+        for &e in groups.iter().flat_map(|g| &g.1) {
+            kept[e] = true;
+        }
+        let complement = d - kept_count < kept_count;
+        let chosen: Vec<usize> = (0..kept.len()).filter(|&e| kept[e] != complement).collect();
+        let basis = DMatrix::from_fn(d, chosen.len(), |row, c| real[(row, chosen[c])]);
+        let discard = if complement { Discard::Complement(basis) } else { Discard::Captured(basis) };
+        let image_discarded = per_image_discarded_untwisted(primary, spectra, s, &discard).into_iter().map(|e| 2.0 * e).collect();
+        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded });
+    }
     let discard = if y.is_none() && d - kept_count < kept_count {
         let mut columns = Vec::with_capacity(d - kept_count);
         for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
@@ -662,14 +681,7 @@ pub(crate) fn solve_orbit(
             layers.iter().flat_map(|q| q.column_iter().map(|c| c.into_owned())).collect();
         Discard::Captured(if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) })
     };
-    // With the untwisted decomposition every eigenvector `e = S u` (`u`
-    // real) is fixed by `J v = D conj(v)`, so the projector onto the kept
-    // space commutes with `J`, and `v_{p'} = c J v_p` (`|c| = 1`) loses as
-    // much as `v_p`: the couples' first points, counted twice.
-    let image_discarded = match &untwisted {
-        Some((.., primary)) => per_image_discarded(primary, spectra, &discard).into_iter().map(|e| 2.0 * e).collect(),
-        None => per_image_discarded(&point_gathers, spectra, &discard),
-    };
+    let image_discarded = per_image_discarded(&point_gathers, spectra, &discard);
     Ok(OrbitSolution { layer_energy, tail, layers, image_discarded })
 }
 
@@ -723,12 +735,14 @@ fn mirror_halves(sym: &Symmetry, orbit: &Orbit, fibers: &Fibers, point_gathers: 
 struct Eigen {
     eigenvalues: DVector<f64>,
     eigenvectors: DMatrix<Complex64>,
+    /// For [`untwisted_eigen`]: the real eigenvectors `U` (`eigenvectors = S U`).
+    untwisted: Option<DMatrix<f64>>,
 }
 
 /// The eigen-decomposition of a Hermitian `C`.
 fn hermitian_eigen(c: DMatrix<Complex64>) -> Eigen {
     let eig = nalgebra::SymmetricEigen::new(c);
-    Eigen { eigenvalues: eig.eigenvalues, eigenvectors: eig.eigenvectors }
+    Eigen { eigenvalues: eig.eigenvalues, eigenvectors: eig.eigenvectors, untwisted: None }
 }
 
 /// The eigen-decomposition of `C = S C' Sᴴ` from the real symmetric `C'`
@@ -738,7 +752,7 @@ fn untwisted_eigen(real: DMatrix<f64>, s: &[Complex64]) -> Eigen {
     let n = real.nrows();
     let eig = nalgebra::SymmetricEigen::new(real);
     let eigenvectors = DMatrix::from_fn(n, n, |a, e| s[a] * eig.eigenvectors[(a, e)]);
-    Eigen { eigenvalues: eig.eigenvalues, eigenvectors }
+    Eigen { eigenvalues: eig.eigenvalues, eigenvectors, untwisted: Some(eig.eigenvectors) }
 }
 
 /// `C = S C' Sᴴ` for a diagonal `S` (see [`untwisted_covariance`]).
@@ -819,24 +833,47 @@ fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep
 }
 
 /// How [`per_image_discarded`] measures what the layers leave out.
-enum Discard {
+enum Discard<T: nalgebra::Scalar> {
     /// An orthonormal basis of the kept space: discarded = `||v||² − ||Qᴴv||²`,
     /// or `||v − Q Qᴴ v||²` when that difference is below `1e-6 ||v||²`.
-    Captured(DMatrix<Complex64>),
+    Captured(DMatrix<T>),
     /// An orthonormal basis of its complement: discarded = `||Rᴴv||²`.
-    Complement(DMatrix<Complex64>),
+    Complement(DMatrix<T>),
+}
+
+impl<T: nalgebra::Scalar> Discard<T> {
+    fn basis(&self) -> &DMatrix<T> {
+        match self {
+            Discard::Captured(q) | Discard::Complement(q) => q,
+        }
+    }
+    /// One vector's discarded energy from its `energy`, the squared norm
+    /// `inside` of its coordinates in the basis, and (called only when the
+    /// difference has lost its digits) the squared norm of `v − Q Qᴴ v`.
+    fn share(&self, energy: f64, inside: f64, residual: impl FnOnce() -> f64) -> f64 {
+        match self {
+            Discard::Complement(_) => inside,
+            Discard::Captured(q) => {
+                let left = energy - inside;
+                // Nearly all captured: take the residual vector itself.
+                if q.ncols() > 0 && left < 1e-6 * energy {
+                    residual()
+                } else {
+                    left.max(0.0)
+                }
+            }
+        }
+    }
 }
 
 /// Per image `i`, `Σ_p ||v_{p,i} − P v_{p,i}||²` over the orbit's points `p`
 /// (each fiber of the orbit once), in spectrum units (divide by `|T|`).
-fn per_image_discarded(point_gathers: &[Gather], spectra: &[Vec<Complex64>], discard: &Discard) -> Vec<f64> {
+fn per_image_discarded(point_gathers: &[Gather], spectra: &[Vec<Complex64>], discard: &Discard<Complex64>) -> Vec<f64> {
     let m = spectra.len();
     let d = point_gathers.first().map_or(0, |g| g.index.len());
     let mut out = vec![0.0; m];
     let pairs: Vec<(usize, &Gather)> = point_gathers.iter().flat_map(|g| (0..m).map(move |i| (i, g))).collect();
-    let basis = match discard {
-        Discard::Captured(q) | Discard::Complement(q) => q,
-    };
+    let basis = discard.basis();
     let basis_parts = (basis.ncols() > 0).then(|| split(basis));
     for chunk in pairs.chunks(POOL_BLOCK) {
         let mut x = DMatrix::<Complex64>::zeros(d, chunk.len());
@@ -846,19 +883,34 @@ fn per_image_discarded(point_gathers: &[Gather], spectra: &[Vec<Complex64>], dis
         let projected = basis_parts.as_ref().map(|(a, b)| adjoint_product_parts(a, b, &x));
         for (c, &(i, _)) in chunk.iter().enumerate() {
             let inside = projected.as_ref().map_or(0.0, |p| p.column(c).norm_squared());
-            out[i] += match discard {
-                Discard::Captured(q) => {
-                    let energy = x.column(c).norm_squared();
-                    let left = energy - inside;
-                    match &projected {
-                        // Nearly all captured: the difference has lost its
-                        // digits, so take the residual vector itself.
-                        Some(p) if left < 1e-6 * energy => (x.column(c) - q * p.column(c)).norm_squared(),
-                        _ => left.max(0.0),
-                    }
-                }
-                Discard::Complement(_) => inside,
+            let residual = || (x.column(c) - basis * projected.as_ref().expect("a non-empty basis").column(c)).norm_squared();
+            out[i] += discard.share(x.column(c).norm_squared(), inside, residual);
+        }
+    }
+    out
+}
+
+/// [`per_image_discarded`] for an untwisted orbit (see
+/// [`untwisted_covariance`]) over the given points, with a real basis `U`
+/// of the untwisted space: `||(S U)ᴴ v|| = ||Uᵀ w||` for `w = Sᴴ v`, and with
+/// `w = P + iQ` that is one real product `Uᵀ [P Q]` per block of vectors.
+fn per_image_discarded_untwisted(gathers: &[Gather], spectra: &[Vec<Complex64>], s: &[Complex64], discard: &Discard<f64>) -> Vec<f64> {
+    let mut out = vec![0.0; spectra.len()];
+    let phases = untwisted_phases(gathers, s);
+    let pairs: Vec<(usize, usize)> = (0..gathers.len()).flat_map(|g| (0..spectra.len()).map(move |i| (g, i))).collect();
+    let basis = discard.basis();
+    let basis_t = basis.transpose();
+    for chunk in pairs.chunks(POOL_BLOCK) {
+        let w = untwisted_block(gathers, &phases, spectra, chunk);
+        let projected = (basis.ncols() > 0).then(|| &basis_t * &w);
+        for (c, &(_, i)) in chunk.iter().enumerate() {
+            let (re, im) = (w.column(2 * c), w.column(2 * c + 1));
+            let inside = projected.as_ref().map_or(0.0, |z| z.column(2 * c).norm_squared() + z.column(2 * c + 1).norm_squared());
+            let residual = || {
+                let z = projected.as_ref().expect("a non-empty basis");
+                (re - basis * z.column(2 * c)).norm_squared() + (im - basis * z.column(2 * c + 1)).norm_squared()
             };
+            out[i] += discard.share(re.norm_squared() + im.norm_squared(), inside, residual);
         }
     }
     out
@@ -907,20 +959,12 @@ pub(crate) fn pooled_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>]) 
 /// [`pooled_covariance`] for the same vectors.
 pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>], s: &[Complex64]) -> DMatrix<f64> {
     let d = s.len();
-    // Per gather, the phases times conj(S).
-    let phases: Vec<Vec<Complex64>> = gathers.iter().map(|g| g.phase.iter().zip(s).map(|(p, t)| p * t.conj()).collect()).collect();
-    let pairs: Vec<(usize, &Vec<Complex64>)> = (0..gathers.len()).flat_map(|g| spectra.iter().map(move |sp| (g, sp))).collect();
+    let phases = untwisted_phases(gathers, s);
+    let pairs: Vec<(usize, usize)> = (0..gathers.len()).flat_map(|g| (0..spectra.len()).map(move |i| (g, i))).collect();
     let mut out = DMatrix::<f64>::zeros(d, d);
     let h = d / 2;
     for chunk in pairs.chunks(POOL_BLOCK) {
-        let mut w = DMatrix::<f64>::zeros(d, 2 * chunk.len());
-        for (c, &(g, sp)) in chunk.iter().enumerate() {
-            for (k, (&i, &p)) in gathers[g].index.iter().zip(&phases[g]).enumerate() {
-                let v = p * sp[i];
-                w[(k, 2 * c)] = v.re;
-                w[(k, 2 * c + 1)] = v.im;
-            }
-        }
+        let w = untwisted_block(gathers, &phases, spectra, chunk);
         let wt = w.transpose();
         // Lower block triangle of 2 W Wᵀ: [0,0], [1,0], [1,1].
         out.view_mut((0, 0), (h, h)).gemm(2.0, &w.rows(0, h), &wt.columns(0, h), 1.0);
@@ -933,6 +977,26 @@ pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>
         }
     }
     out
+}
+
+/// Per gather, its phases times `conj(S)`: `w = Sᴴ v` is gathered directly.
+fn untwisted_phases(gathers: &[Gather], s: &[Complex64]) -> Vec<Vec<Complex64>> {
+    gathers.iter().map(|g| g.phase.iter().zip(s).map(|(p, t)| p * t.conj()).collect()).collect()
+}
+
+/// The vectors `w = Sᴴ v` of the `(gather, image)` pairs in `chunk` as real
+/// columns: pair `c`'s real part in column `2c`, its imaginary part in `2c + 1`.
+fn untwisted_block(gathers: &[Gather], phases: &[Vec<Complex64>], spectra: &[Vec<Complex64>], chunk: &[(usize, usize)]) -> DMatrix<f64> {
+    let d = phases.first().map_or(0, |p| p.len());
+    let mut w = DMatrix::<f64>::zeros(d, 2 * chunk.len());
+    for (c, &(g, i)) in chunk.iter().enumerate() {
+        for (k, (&j, &p)) in gathers[g].index.iter().zip(&phases[g]).enumerate() {
+            let v = p * spectra[i][j];
+            w[(k, 2 * c)] = v.re;
+            w[(k, 2 * c + 1)] = v.im;
+        }
+    }
+    w
 }
 
 /// The Gram matrix `Yᴴ Y = (AᵀA + BᵀB) + i (AᵀB − (AᵀB)ᵀ)` of `Y = A + iB`, from `(A, B)`.

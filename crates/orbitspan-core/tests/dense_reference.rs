@@ -291,3 +291,64 @@ fn hexagonal_fit_on_resampled_images_matches_dense_reference() {
         }
     }
 }
+
+/// Near-exact fits: each image lies in the Γ-orbit span of one generator up
+/// to noise of 1e-4, so what the fit leaves out is about 1e-8 of the energy.
+/// Each image's reported error must still carry its own digits (relative
+/// 1e-9 of itself; about 1e-11 is seen), which `energy − captured` cannot
+/// give at that size (about 1e-6 of itself); the
+/// reference is the residual vector `f − P f` itself, formed densely from the
+/// fitted generators' Γ-orbit span. Groups with and without mirror couples
+/// (the real untwisted path and the complex one).
+#[test]
+fn near_exact_fits_report_per_image_errors_to_their_own_digits() {
+    let mut rng = Rng(0xfeed_f00d);
+    for (symbol, n, cell) in [
+        (GroupSymbol::Pmm, [16, 16], [4, 4]),
+        (GroupSymbol::P4, [16, 16], [4, 4]),
+        (GroupSymbol::P1, [12, 12], [4, 4]),
+        (GroupSymbol::Pg, [16, 12], [4, 4]),
+        (GroupSymbol::P6, [12, 12], [4, 4]),
+    ] {
+        let group = PlaneGroup::standard(symbol);
+        let sym = Symmetry::new(n, cell, &group).unwrap();
+        let perms = group_permutations(&sym);
+        let g = rng.image(n);
+        let images: Vec<Image> = (0..3)
+            .map(|_| {
+                let mut f = vec![0.0; n[0] * n[1]];
+                for p in &perms {
+                    let w = rng.next();
+                    for (x, v) in act(p, &g.pixels).iter().enumerate() {
+                        f[x] += w * v;
+                    }
+                }
+                Image::new(n[0], n[1], f.iter().map(|v| v + 1e-4 * rng.next()).collect())
+            })
+            .collect();
+        let stack = stack_of(&images);
+        let fit = fit_with_path(&stack, &settings(symbol, cell, 1), FiberPath::Auto, &mut Silent).unwrap();
+        // An orthonormal basis of the generators' Γ-orbit span.
+        let vectors = orbit_vectors(&perms, fit.model.generators());
+        let eig = (&vectors * vectors.transpose()).symmetric_eigen();
+        let top = eig.eigenvalues.iter().fold(0.0f64, |m, v| m.max(*v));
+        let basis: Vec<DVector<f64>> = (0..eig.eigenvalues.len())
+            .filter(|&k| eig.eigenvalues[k] > 1e-9 * top)
+            .map(|k| eig.eigenvectors.column(k).into_owned())
+            .collect();
+        for (img, reported) in images.iter().zip(&fit.report.images) {
+            let f = DVector::from_column_slice(&img.pixels);
+            let mut r = f.clone();
+            for e in &basis {
+                r -= e * e.dot(&f);
+            }
+            let reference = r.norm_squared();
+            assert!(reference < 1e-6 * img.energy(), "{symbol:?}: the image is not near the span ({reference} of {})", img.energy());
+            assert!(
+                (reported.error - reference).abs() <= 1e-9 * reference,
+                "{symbol:?}: image error {} vs residual vector {reference}",
+                reported.error
+            );
+        }
+    }
+}
