@@ -514,7 +514,16 @@ pub(crate) fn solve_orbit(
     // Trivial stabiliser with mirror couples: the untwisted covariance
     // `C' = Sᴴ C S` (real symmetric) and `S`, and the couples' first points.
     let mut untwisted: Option<(DMatrix<f64>, Vec<Complex64>, Vec<Gather>)> = None;
-    let (x, ops, y) = if use_gram {
+    // Gram path, the same orbits: the real Gram matrix `UᵀU`, `U` and `S`.
+    let mut untwisted_gram: Option<(DMatrix<f64>, DMatrix<f64>, Vec<Complex64>)> = None;
+    let (x, ops, y) = if use_gram && orbit.stabiliser.len() <= 1 && mirror_halves(sym, orbit, fibers, &point_gathers).is_some() {
+        let (primary, d) = mirror_halves(sym, orbit, fibers, &point_gathers).expect("checked above");
+        let s: Vec<Complex64> = d.iter().map(|z| z.sqrt()).collect();
+        let u = untwisted_gram_vectors(&primary, spectra, &s);
+        let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
+        untwisted_gram = Some((u.transpose() * &u, u, s));
+        (DMatrix::zeros(0, 0), ops, None)
+    } else if use_gram {
         let gathers: Vec<Gather> = (0..gcount).map(|g| fibers.gather(sym, orbit.rep, g)).collect();
         let mut y = DMatrix::<Complex64>::zeros(d, gcount * m);
         for (g, gather) in gathers.iter().enumerate() {
@@ -547,13 +556,11 @@ pub(crate) fn solve_orbit(
         };
         (x, ops, None)
     };
-    let n = match &untwisted {
-        Some((real, ..)) => real.nrows(),
-        None => x.nrows(),
-    };
+    let real_moment = untwisted.as_ref().map(|u| &u.0).or(untwisted_gram.as_ref().map(|u| &u.0));
+    let n = real_moment.map_or(x.nrows(), |c| c.nrows());
     let blocks = isotypic_blocks(n, &ops)?;
-    let trace: f64 = match &untwisted {
-        Some((real, ..)) => real.trace(),
+    let trace: f64 = match real_moment {
+        Some(c) => c.trace(),
         None => (0..n).map(|i| x[(i, i)].re).sum(),
     };
     let tol = 1e-12 * trace;
@@ -571,6 +578,10 @@ pub(crate) fn solve_orbit(
         let eig = if let Some((real, s, _)) = &untwisted {
             assert!(whole, "a trivial stabiliser has one isotypic block");
             untwisted_eigen(real.clone(), s)
+        } else if let Some((gram, ..)) = &untwisted_gram {
+            assert!(whole, "a trivial stabiliser has one isotypic block");
+            let eig = nalgebra::SymmetricEigen::new(gram.clone());
+            Eigen { eigenvalues: eig.eigenvalues, eigenvectors: eig.eigenvectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(eig.eigenvectors) }
         } else if whole {
             hermitian_eigen(x.clone())
         } else {
@@ -617,6 +628,18 @@ pub(crate) fn solve_orbit(
         // many layers are kept, so the generators for L are bit-identical to
         // the first L for L + 1.
         for (layer, es) in groups {
+            if let Some((_, u, s)) = &untwisted_gram {
+                // `Y' a = S (U a)` for real coefficients `a`: one real product.
+                let a = eig.untwisted.as_ref().expect("real eigenvectors");
+                let z = u * DMatrix::from_fn(a.nrows(), es.len(), |row, c| a[(row, es[c])]);
+                for col in z.column_iter() {
+                    let norm = col.norm();
+                    if norm > 0.0 {
+                        layer_vectors[*layer].push(DVector::from_fn(d, |k, _| s[k] * (col[k] / norm)));
+                    }
+                }
+                continue;
+            }
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), es.len(), |row, c| eig.eigenvectors[(row, es[c])]);
             let v = if whole { coeffs } else { product(&b.basis, &coeffs) };
             let u = match &y {
@@ -660,7 +683,7 @@ pub(crate) fn solve_orbit(
         let image_discarded = per_image_discarded_untwisted(primary, spectra, s, &discard).into_iter().map(|e| 2.0 * e).collect();
         return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded });
     }
-    let discard = if y.is_none() && d - kept_count < kept_count {
+    let discard = if y.is_none() && untwisted_gram.is_none() && d - kept_count < kept_count {
         let mut columns = Vec::with_capacity(d - kept_count);
         for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
             let mut kept = vec![false; eig.eigenvalues.len()];
@@ -977,6 +1000,25 @@ pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>
         }
     }
     out
+}
+
+/// The Gram path's vectors for mirror couples (see [`mirror_halves`]):
+/// for each couple's first point `p` and image, `v = v_p` and its twin
+/// `J v = D conj(v)` (the fiber vector of the other point, up to a
+/// unimodular constant) are replaced by `(v + Jv)/√2` and `i(v − Jv)/√2`,
+/// a unitary change of columns that keeps `Y Yᴴ` (so the Gram matrix's
+/// eigenvalues and the layer vectors `Y a`). Both are fixed by `J`, so they
+/// are `S u` with `u` real: `√2 Re(w)` and `−√2 Im(w)` for `w = Sᴴ v`.
+/// Returns the real `U` (d x 2·points·images); `UᵀU` is the real Gram
+/// matrix and `S (U a)` a layer vector.
+fn untwisted_gram_vectors(primary: &[Gather], spectra: &[Vec<Complex64>], s: &[Complex64]) -> DMatrix<f64> {
+    let phases = untwisted_phases(primary, s);
+    let pairs: Vec<(usize, usize)> = (0..primary.len()).flat_map(|g| (0..spectra.len()).map(move |i| (g, i))).collect();
+    let mut u = untwisted_block(primary, &phases, spectra, &pairs);
+    for (c, mut col) in u.column_iter_mut().enumerate() {
+        col *= if c % 2 == 0 { std::f64::consts::SQRT_2 } else { -std::f64::consts::SQRT_2 };
+    }
+    u
 }
 
 /// Per gather, its phases times `conj(S)`: `w = Sᴴ v` is gathered directly.
