@@ -567,6 +567,7 @@ pub(crate) fn solve_orbit(
     let mut layer_energy = vec![0.0; lmax];
     let mut tail = 0.0;
     let mut layer_vectors: Vec<Vec<DVector<Complex64>>> = vec![Vec::new(); lmax];
+    let mut real_layer_vectors: Vec<Vec<DVector<f64>>> = vec![Vec::new(); lmax];
     // Per block: its eigenvectors, and which were kept (by layer) or not.
     let mut decompositions = Vec::with_capacity(blocks.len());
     let mut kept_count = 0;
@@ -628,14 +629,15 @@ pub(crate) fn solve_orbit(
         // many layers are kept, so the generators for L are bit-identical to
         // the first L for L + 1.
         for (layer, es) in groups {
-            if let Some((_, u, s)) = &untwisted_gram {
-                // `Y' a = S (U a)` for real coefficients `a`: one real product.
+            if let Some((_, u, _)) = &untwisted_gram {
+                // `Y' a = S (U a)` for real coefficients `a`: one real
+                // product; `S` is applied after orthonormalising.
                 let a = eig.untwisted.as_ref().expect("real eigenvectors");
                 let z = u * DMatrix::from_fn(a.nrows(), es.len(), |row, c| a[(row, es[c])]);
                 for col in z.column_iter() {
                     let norm = col.norm();
                     if norm > 0.0 {
-                        layer_vectors[*layer].push(DVector::from_fn(d, |k, _| s[k] * (col[k] / norm)));
+                        real_layer_vectors[*layer].push(col.unscale(norm));
                     }
                 }
                 continue;
@@ -654,7 +656,19 @@ pub(crate) fn solve_orbit(
             }
         }
     }
-    let layers = orthonormal_layers(layer_vectors, d, orbit.rep)?;
+    // Covariance path: the layer vectors are eigenvectors of one Hermitian
+    // matrix (or an orthonormal block basis times them), orthonormal to
+    // round-off already. Gram path: `Y a / ||Y a||` loses orthogonality for
+    // small eigenvalues, so the layers are orthonormalised.
+    let layers = if let Some((.., s)) = &untwisted_gram {
+        // Orthonormal real vectors `z` give orthonormal `S z` (`|S| = 1`).
+        let real = orthonormal_layers(real_layer_vectors, d, orbit.rep)?;
+        real.iter().map(|q| DMatrix::from_fn(d, q.ncols(), |a, c| s[a] * q[(a, c)])).collect()
+    } else if y.is_none() {
+        layer_vectors.into_iter().map(|cols| if cols.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&cols) }).collect()
+    } else {
+        orthonormal_layers(layer_vectors, d, orbit.rep)?
+    };
     // Per-image discarded energy with all lmax layers. The images' shares
     // are non-negative and sum to the energy left out, so when that is
     // round-off (every eigenvalue above it kept) each share is zero to
@@ -807,32 +821,32 @@ fn symmetrised(c: &DMatrix<Complex64>, ops: &[Monomial]) -> DMatrix<Complex64> {
 /// within the layer by modified Gram–Schmidt run twice. The Gram path's
 /// `Y v / ||Y v||` loses orthogonality for small eigenvalues. Layer `l`
 /// depends only on layers `< l`, so the layers stay nested.
-fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep: [usize; 2]) -> Result<Vec<DMatrix<Complex64>>> {
-    let mut layers: Vec<DMatrix<Complex64>> = Vec::with_capacity(layer_vectors.len());
-    // All earlier layers side by side, as real and imaginary parts.
-    let mut earlier: Vec<DVector<Complex64>> = Vec::new();
-    let mut earlier_parts: Option<(DMatrix<f64>, DMatrix<f64>)> = None;
+fn orthonormal_layers<T: LayerScalar>(layer_vectors: Vec<Vec<DVector<T>>>, d: usize, rep: [usize; 2]) -> Result<Vec<DMatrix<T>>> {
+    let mut layers: Vec<DMatrix<T>> = Vec::with_capacity(layer_vectors.len());
+    // All earlier layers side by side.
+    let mut earlier: Vec<DVector<T>> = Vec::new();
+    let mut earlier_matrix: Option<T::Prepared> = None;
     for cols in layer_vectors {
         if cols.is_empty() {
             layers.push(DMatrix::zeros(d, 0));
             continue;
         }
         let mut v = DMatrix::from_columns(&cols);
-        if let Some((pa, pb)) = &earlier_parts {
+        if let Some(e) = &earlier_matrix {
             // A second pass only when the first cancelled much of a column
             // (the criterion of Daniel, Gragg, Kaufman and Stewart, 1976):
             // otherwise one pass leaves it orthogonal to round-off.
             let before: Vec<f64> = v.column_iter().map(|c| c.norm()).collect();
             for pass in 0..2 {
-                let c = adjoint_product_parts(pa, pb, &v);
-                v -= product_parts(pa, pb, &c);
+                let c = T::adjoint_times(e, &v);
+                v -= T::times(e, &c);
                 let cancelled = v.column_iter().zip(&before).any(|(c, &b)| c.norm() < b * std::f64::consts::FRAC_1_SQRT_2);
                 if pass == 0 && !cancelled {
                     break;
                 }
             }
         }
-        let mut q: Vec<DVector<Complex64>> = Vec::with_capacity(v.ncols());
+        let mut q: Vec<DVector<T>> = Vec::with_capacity(v.ncols());
         for j in 0..v.ncols() {
             let mut x = v.column(j).into_owned();
             for _ in 0..2 {
@@ -843,16 +857,53 @@ fn orthonormal_layers(layer_vectors: Vec<Vec<DVector<Complex64>>>, d: usize, rep
             }
             let norm = x.norm();
             if norm > 0.5 {
-                q.push(x / Complex64::new(norm, 0.0));
+                q.push(x.unscale(norm));
             } else {
                 return Err(Error::Internal(format!("fiber {rep:?}: kept vectors are not independent")));
             }
         }
         earlier.extend(q.iter().cloned());
-        earlier_parts = Some(split(&DMatrix::from_columns(&earlier)));
+        earlier_matrix = Some(T::prepare(DMatrix::from_columns(&earlier)));
         layers.push(DMatrix::from_columns(&q));
     }
     Ok(layers)
+}
+
+/// The scalars [`orthonormal_layers`] works in: `Eᴴ V` and `E C` through
+/// the blocked real matrix product (complex matrices split once into real
+/// and imaginary parts).
+trait LayerScalar: nalgebra::ComplexField<RealField = f64> + Copy {
+    /// `E` made ready for repeated products.
+    type Prepared;
+    fn prepare(e: DMatrix<Self>) -> Self::Prepared;
+    fn adjoint_times(e: &Self::Prepared, v: &DMatrix<Self>) -> DMatrix<Self>;
+    fn times(e: &Self::Prepared, c: &DMatrix<Self>) -> DMatrix<Self>;
+}
+
+impl LayerScalar for f64 {
+    type Prepared = (DMatrix<f64>, DMatrix<f64>);
+    fn prepare(e: DMatrix<f64>) -> Self::Prepared {
+        (e.transpose(), e)
+    }
+    fn adjoint_times(e: &Self::Prepared, v: &DMatrix<f64>) -> DMatrix<f64> {
+        &e.0 * v
+    }
+    fn times(e: &Self::Prepared, c: &DMatrix<f64>) -> DMatrix<f64> {
+        &e.1 * c
+    }
+}
+
+impl LayerScalar for Complex64 {
+    type Prepared = (DMatrix<f64>, DMatrix<f64>);
+    fn prepare(e: DMatrix<Complex64>) -> Self::Prepared {
+        split(&e)
+    }
+    fn adjoint_times(e: &Self::Prepared, v: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+        adjoint_product_parts(&e.0, &e.1, v)
+    }
+    fn times(e: &Self::Prepared, c: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+        product_parts(&e.0, &e.1, c)
+    }
 }
 
 /// How [`per_image_discarded`] measures what the layers leave out.
@@ -1136,5 +1187,43 @@ mod tests {
                 }
             }
         }
+    }
+}
+
+#[cfg(test)]
+mod layer_tests {
+    use super::*;
+    use crate::prng::SplitMix64;
+
+    /// Two layers of vectors that are orthonormal up to errors of 1e-4
+    /// (as the Gram path's `Y a / ||Y a||` are, more or less): the result
+    /// must be orthonormal to round-off, across and within layers, and each
+    /// vector must move by no more than about the error.
+    fn check<T: LayerScalar>(make: impl Fn(&mut SplitMix64) -> T) {
+        let mut rng = SplitMix64(11);
+        let (d, delta) = (12, 1e-4);
+        let exact = DMatrix::<T>::from_fn(d, 5, |_, _| make(&mut rng)).qr().q();
+        let inputs: Vec<DVector<T>> = (0..5)
+            .map(|k| (exact.column(k) + DVector::<T>::from_fn(d, |_, _| make(&mut rng)).scale(delta)).normalize())
+            .collect();
+        let layers = orthonormal_layers(vec![inputs[..3].to_vec(), inputs[3..].to_vec()], d, [0, 0]).unwrap();
+        let q = DMatrix::from_columns(&layers.iter().flat_map(|l| l.column_iter().map(|c| c.into_owned())).collect::<Vec<_>>());
+        let gram = q.adjoint() * &q;
+        for r in 0..gram.nrows() {
+            for c in 0..gram.ncols() {
+                let want = T::from_real(if r == c { 1.0 } else { 0.0 });
+                assert!((gram[(r, c)] - want).modulus() < 1e-13, "QᴴQ[{r},{c}] = {:?}", gram[(r, c)]);
+            }
+        }
+        for (k, v) in inputs.iter().enumerate() {
+            let moved = (q.column(k) - v).norm();
+            assert!(moved < 50.0 * delta, "vector {k} moved by {moved}");
+        }
+    }
+
+    #[test]
+    fn orthonormal_layers_correct_small_errors_real_and_complex() {
+        check(|rng| rng.normal());
+        check(|rng| Complex64::new(rng.normal(), rng.normal()));
     }
 }

@@ -352,3 +352,41 @@ fn near_exact_fits_report_per_image_errors_to_their_own_digits() {
         }
     }
 }
+
+/// The Gram path on ill-conditioned data: each image is one strong pattern
+/// plus a part 1e-5 as strong, so the later layers come from eigenvalues
+/// about 1e-10 of the first, where `Y a / ||Y a||` is least accurate. The
+/// frame must still be Parseval (frame eigenvalues 0 or 1) and the curve
+/// the covariance path's. Groups with mirror couples (real arithmetic) and
+/// without (complex). `orthonormal_layers` itself is checked on harder
+/// input by its unit test.
+#[test]
+fn gram_path_layers_stay_orthonormal_for_tiny_eigenvalues() {
+    const WEAK: f64 = 1e-5;
+    let mut rng = Rng(0x0dd_ba11);
+    for (symbol, n, cell) in [(GroupSymbol::Pmm, [16, 16], [4, 4]), (GroupSymbol::P1, [12, 12], [4, 4]), (GroupSymbol::P4, [16, 16], [4, 4])] {
+        let group = PlaneGroup::standard(symbol);
+        let sym = Symmetry::new(n, cell, &group).unwrap();
+        let perms = group_permutations(&sym);
+        let strong = rng.image(n);
+        let images: Vec<Image> = (0..2)
+            .map(|_| {
+                let weak = rng.image(n);
+                Image::new(n[0], n[1], strong.pixels.iter().zip(&weak.pixels).map(|(s, w)| s + WEAK * w).collect())
+            })
+            .collect();
+        let stack = stack_of(&images);
+        let s = settings(symbol, cell, 3);
+        let gram = fit_with_path(&stack, &s, FiberPath::Gram, &mut Silent).unwrap();
+        let cov = fit_with_path(&stack, &s, FiberPath::Covariance, &mut Silent).unwrap();
+        let total: f64 = images.iter().map(Image::energy).sum();
+        for (p, q) in gram.report.error_curve.iter().zip(&cov.report.error_curve) {
+            assert!((p.error - q.error).abs() <= 1e-12 * total, "{symbol:?}: Gram {} vs covariance {}", p.error, q.error);
+        }
+        let vectors = orbit_vectors(&perms, gram.model.generators());
+        let (_, frame_eigs) = span_error(&vectors, &images);
+        for v in frame_eigs {
+            assert!(v.abs() < 1e-9 || (v - 1.0).abs() < 1e-9, "{symbol:?}: frame eigenvalue {v}");
+        }
+    }
+}
