@@ -1,4 +1,4 @@
-//! `cargo xtask bench [--quick] [--reps N] [--only W1,W2,W3] [--no-browser]`:
+//! `cargo xtask bench [--quick] [--reps N] [--only W1,W2,W3,dense] [--no-browser]`:
 //! the benchmark crate (`crates/orbitspan-bench`, release) against the FFT
 //! floor and the dense method, and the same workloads in the browser app.
 //!

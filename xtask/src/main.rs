@@ -35,7 +35,7 @@ commands:
                        http://127.0.0.1:P/ (default port 8000)
   dist                 write dist/site/ (for any static host) and
                        dist/orbitspan.html (one self-contained file)
-  bench [--quick] [--reps N] [--only W1,W2,W3] [--no-browser]
+  bench [--quick] [--reps N] [--only W1,W2,W3,dense] [--no-browser]
                        benchmark the fit (release) natively and in headless
                        Chromium; writes target/bench/
 ";
