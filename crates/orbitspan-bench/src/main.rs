@@ -69,6 +69,9 @@ struct WorkloadResult {
     description: String,
     images: usize,
     fit_seconds: f64,
+    /// The fit with its per-orbit work on one thread (the FFT-only pass is
+    /// one thread too).
+    one_thread_fit_seconds: f64,
     fft_seconds: f64,
     half_stack_fit_seconds: f64,
     stack_f32_bytes: usize,
@@ -77,6 +80,7 @@ struct WorkloadResult {
     /// One fit's seconds per progress stage (from each stage's first report to the next's).
     stages: Vec<(String, f64)>,
     fit_over_fft: f64,
+    one_thread_fit_over_fft: f64,
     doubling: f64,
     memory_over_stack_f32: f64,
     memory_during_fit_over_stack_f32: f64,
@@ -218,7 +222,7 @@ fn measure(w: &Workload, reps: usize) -> WorkloadResult {
     )
     .expect("half of a valid stack is valid");
 
-    let (mut fits, mut ffts, mut halves) = (Vec::new(), Vec::new(), Vec::new());
+    let (mut fits, mut ffts, mut halves, mut singles) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     for rep in 0..reps {
         ffts.push(seconds(|| fft_stack(&stack)));
         fits.push(seconds(|| {
@@ -227,14 +231,27 @@ fn measure(w: &Workload, reps: usize) -> WorkloadResult {
         halves.push(seconds(|| {
             std::hint::black_box(run_fit(&half, w));
         }));
-        eprintln!("  rep {}: fft {:.3} s, fit {:.3} s, half-stack fit {:.3} s", rep + 1, ffts[rep], fits[rep], halves[rep]);
+        orbitspan_core::fiber::set_thread_limit(1);
+        singles.push(seconds(|| {
+            std::hint::black_box(run_fit(&stack, w));
+        }));
+        orbitspan_core::fiber::set_thread_limit(0);
+        eprintln!(
+            "  rep {}: fft {:.3} s, fit {:.3} s, half-stack fit {:.3} s, fit on one thread {:.3} s",
+            rep + 1,
+            ffts[rep],
+            fits[rep],
+            halves[rep],
+            singles[rep]
+        );
     }
-    let (fit_s, fft_s, half_s) = (median(fits), median(ffts), median(halves));
+    let (fit_s, fft_s, half_s, single_s) = (median(fits), median(ffts), median(halves), median(singles));
     WorkloadResult {
         name: w.name.into(),
         description: w.description.clone(),
         images: stack.len(),
         fit_seconds: fit_s,
+        one_thread_fit_seconds: single_s,
         fft_seconds: fft_s,
         half_stack_fit_seconds: half_s,
         stack_f32_bytes: stack_f32,
@@ -242,6 +259,7 @@ fn measure(w: &Workload, reps: usize) -> WorkloadResult {
         peak_heap_during_fit_bytes: peak - before,
         stages,
         fit_over_fft: fit_s / fft_s,
+        one_thread_fit_over_fft: single_s / fft_s,
         doubling: fit_s / half_s,
         memory_over_stack_f32: peak as f64 / stack_f32 as f64,
         memory_during_fit_over_stack_f32: (peak - before) as f64 / stack_f32 as f64,
@@ -353,14 +371,15 @@ fn table(r: &Results) -> String {
         r.threads_available,
         r.memory_method
     ));
-    s.push_str("| workload | fit / FFT-only | time(2N) / time(N) | peak heap / stack f32 (during fit) | fit | FFT-only | fit of N/2 | peak heap | stack f32 |\n");
-    s.push_str("|---|---|---|---|---|---|---|---|---|\n");
+    s.push_str("| workload | fit / FFT-only | the same, one thread each | time(2N) / time(N) | peak heap / stack f32 (during fit) | fit | FFT-only (one thread) | fit of N/2 | peak heap | stack f32 |\n");
+    s.push_str("|---|---|---|---|---|---|---|---|---|---|\n");
     for w in &r.workloads {
         s.push_str(&format!(
-            "| {}: {} | {:.2} | {:.2} | {:.2} ({:.2}) | {:.3} s | {:.3} s | {:.3} s | {} | {} |\n",
+            "| {}: {} | {:.2} | {:.2} | {:.2} | {:.2} ({:.2}) | {:.3} s | {:.3} s | {:.3} s | {} | {} |\n",
             w.name,
             w.description,
             w.fit_over_fft,
+            w.one_thread_fit_over_fft,
             w.doubling,
             w.memory_over_stack_f32,
             w.memory_during_fit_over_stack_f32,
