@@ -215,14 +215,24 @@ impl Prepared {
         let (done, total) = if by_power { (m, 2 * m) } else { (0, m) };
         let mut fibers = PairFibers::new(&sym, &orbits, &pairs, m);
         let mut outside_per_image = vec![0.0; m];
-        for (i, img) in stack.images().iter().enumerate() {
-            check(progress, "transforming images", (done + i) as f64 / total as f64)?;
-            let mut s = spectrum(img);
-            if let Some(b) = &band {
-                outside_per_image[i] = b.restrict(&mut s);
-            }
-            fibers.push(&s);
-        }
+        // Images on threads, each stored in its own place as it arrives:
+        // the same values whatever the thread count or order.
+        check(progress, "transforming images", done as f64 / total as f64)?;
+        let mut stored = 0;
+        for_each_parallel(
+            m,
+            |i| {
+                let mut s = spectrum(&stack.images()[i]);
+                let outside = band.as_ref().map_or(0.0, |b| b.restrict(&mut s));
+                (s, outside)
+            },
+            |i, (s, outside)| {
+                fibers.set(i, &s);
+                outside_per_image[i] = outside;
+                stored += 1;
+                check(progress, "transforming images", (done + stored) as f64 / total as f64)
+            },
+        )?;
         fibers.finish_filling();
         Ok(Prepared {
             settings: settings.clone(),

@@ -40,7 +40,8 @@ pub(crate) fn kept_len(sym: &Symmetry, orbits: &[Orbit], pair: &[usize]) -> usiz
     primary(sym, &pair_points(orbits, pair)).iter().filter(|&&p| p).count() * sym.lattice().fiber_len()
 }
 
-/// Every pair's kept fibers of every image, filled image by image.
+/// Every pair's kept fibers of every image, filled image by image in any
+/// order (each image has its own place).
 pub(crate) struct PairFibers {
     /// Per pair, image-major: `images x kept_len` values.
     data: Vec<Vec<Complex64>>,
@@ -49,8 +50,8 @@ pub(crate) struct PairFibers {
 }
 
 impl PairFibers {
-    /// Empty storage for `pairs`, with room for `images` images (reserved
-    /// exactly: no growth by doubling, no copies while filling).
+    /// Zeroed storage for `pairs` and `images` images (allocated exactly
+    /// once: no growth by doubling, no copies while filling).
     pub fn new(sym: &Symmetry, orbits: &[Orbit], pairs: &[Vec<usize>], images: usize) -> PairFibers {
         let l = sym.lattice();
         let dual = l.dual();
@@ -70,13 +71,16 @@ impl PairFibers {
                     .collect()
             })
             .collect();
-        PairFibers { data: indices.iter().map(|i| Vec::with_capacity(i.len() * images)).collect(), indices }
+        PairFibers { data: indices.iter().map(|i| vec![Complex64::new(0.0, 0.0); i.len() * images]).collect(), indices }
     }
 
-    /// Appends one image's (whole) spectrum.
-    pub fn push(&mut self, spectrum: &[Complex64]) {
+    /// Stores image `image`'s kept values from its (whole) spectrum.
+    pub fn set(&mut self, image: usize, spectrum: &[Complex64]) {
         for (data, indices) in self.data.iter_mut().zip(&self.indices) {
-            data.extend(indices.iter().map(|&i| spectrum[i as usize]));
+            let place = &mut data[image * indices.len()..(image + 1) * indices.len()];
+            for (d, &i) in place.iter_mut().zip(indices) {
+                *d = spectrum[i as usize];
+            }
         }
     }
 
@@ -202,8 +206,9 @@ mod tests {
                 .map(|_| fft2(&Image::new(n[0], n[1], (0..n[0] * n[1]).map(|_| rng.between(-1.0, 1.0)).collect())))
                 .collect();
             let mut store = PairFibers::new(&sym, &orbits, &pairs, spectra.len());
-            for s in &spectra {
-                store.push(s);
+            // Out of order: each image has its own place.
+            for i in (0..spectra.len()).rev() {
+                store.set(i, &spectra[i]);
             }
             store.finish_filling();
             let l = sym.lattice();

@@ -101,6 +101,12 @@ fn settings(symbol: GroupSymbol, cell: [usize; 2], l: usize) -> FitSettings {
     }
 }
 
+/// Γ as pixel permutations for a group on a torus with a cell.
+fn permutations(symbol: GroupSymbol, n: [usize; 2], cell: [usize; 2]) -> Vec<Vec<usize>> {
+    let group = PlaneGroup::standard(symbol);
+    group_permutations(&Symmetry::new(n, cell, &group).unwrap())
+}
+
 fn stack_of(images: &[Image]) -> Stack {
     Stack::new(images.iter().enumerate().map(|(i, im)| (format!("img{i}"), im.clone())).collect()).unwrap()
 }
@@ -235,9 +241,7 @@ fn no_random_generators_do_better() {
         (GroupSymbol::P4m, [8, 8], [4, 4]),
         (GroupSymbol::P3m1, [6, 6], [3, 3]),
     ] {
-        let group = PlaneGroup::standard(symbol);
-        let sym = Symmetry::new(n, cell, &group).unwrap();
-        let perms = group_permutations(&sym);
+        let perms = permutations(symbol, n, cell);
         let images: Vec<Image> = (0..3).map(|_| rng.image(n)).collect();
         for l in 1..=2 {
             let fit = fit_with_path(&stack_of(&images), &settings(symbol, cell, l), FiberPath::Auto, &mut Silent).unwrap();
@@ -310,9 +314,7 @@ fn near_exact_fits_report_per_image_errors_to_their_own_digits() {
         (GroupSymbol::Pg, [16, 12], [4, 4]),
         (GroupSymbol::P6, [12, 12], [4, 4]),
     ] {
-        let group = PlaneGroup::standard(symbol);
-        let sym = Symmetry::new(n, cell, &group).unwrap();
-        let perms = group_permutations(&sym);
+        let perms = permutations(symbol, n, cell);
         let g = rng.image(n);
         let images: Vec<Image> = (0..3)
             .map(|_| {
@@ -358,16 +360,14 @@ fn near_exact_fits_report_per_image_errors_to_their_own_digits() {
 /// about 1e-10 of the first, where `Y a / ||Y a||` is least accurate. The
 /// frame must still be Parseval (frame eigenvalues 0 or 1) and the curve
 /// the covariance path's. Groups with mirror couples (real arithmetic) and
-/// without (complex). `orthonormal_layers` itself is checked on harder
-/// input by its unit test.
+/// without (complex). `orthonormal_layers` itself is unit-tested on
+/// perturbed input.
 #[test]
 fn gram_path_layers_stay_orthonormal_for_tiny_eigenvalues() {
     const WEAK: f64 = 1e-5;
     let mut rng = Rng(0x0dd_ba11);
     for (symbol, n, cell) in [(GroupSymbol::Pmm, [16, 16], [4, 4]), (GroupSymbol::P1, [12, 12], [4, 4]), (GroupSymbol::P4, [16, 16], [4, 4])] {
-        let group = PlaneGroup::standard(symbol);
-        let sym = Symmetry::new(n, cell, &group).unwrap();
-        let perms = group_permutations(&sym);
+        let perms = permutations(symbol, n, cell);
         let strong = rng.image(n);
         let images: Vec<Image> = (0..2)
             .map(|_| {
