@@ -23,7 +23,7 @@ use crate::progress::Progress;
 use crate::report::{BandReport, CurvePoint, GeneratorInfo, ImageError, Report};
 use crate::pair_fibers::{self, PairFibers};
 use crate::settings::{BandSpec, FitSettings};
-use crate::spectrum::fft2;
+use crate::spectrum::fft2_in_place;
 use crate::stack::{Image, Stack};
 use nalgebra::{DMatrix, DVector};
 use num_complex::Complex64;
@@ -194,7 +194,7 @@ impl Prepared {
         let orbits = sym.orbits();
         let pairs = orbit_pairs(&sym, &orbits);
         let m = stack.len();
-        let spectrum = |img: &Image| fft2(&to_group_frame(img, settings.origin));
+        let spectrum = |img: &Image| group_frame_spectrum(img, settings.origin);
         let by_power = matches!(settings.band, Some(BandSpec::Frequencies(_)));
         let band: Option<Band> = match &settings.band {
             Some(spec) => {
@@ -466,9 +466,26 @@ pub(crate) fn check(progress: &mut dyn Progress, stage: &str, fraction: f64) -> 
     }
 }
 
-/// Moves pixel `origin` to `(0, 0)`: `out(x) = f(x + origin)`.
+/// Moves pixel `origin` to `(0, 0)`: `out(x) = f(x + origin)` (the
+/// reference for [`group_frame_spectrum`]).
+#[cfg(test)]
 pub(crate) fn to_group_frame(img: &Image, origin: [usize; 2]) -> Image {
     img.shifted((img.height - origin[0]) % img.height, (img.width - origin[1]) % img.width)
+}
+
+/// The spectrum of [`to_group_frame`]`(img, origin)`, read straight into
+/// the transform's buffer (no shifted copy of the image).
+pub(crate) fn group_frame_spectrum(img: &Image, origin: [usize; 2]) -> Vec<Complex64> {
+    let (h, w) = (img.height, img.width);
+    let mut data = Vec::with_capacity(h * w);
+    let o1 = origin[1] % w;
+    for r in 0..h {
+        let src = (r + origin[0]) % h;
+        let row = &img.pixels[src * w..(src + 1) * w];
+        data.extend(row[o1..].iter().chain(&row[..o1]).map(|&v| Complex64::new(v, 0.0)));
+    }
+    fft2_in_place(&mut data, h, w, false);
+    data
 }
 
 /// The inverse of [`to_group_frame`].
@@ -1196,6 +1213,23 @@ mod tests {
                     assert!((fast[(r, c)] - slow.re).abs() <= 1e-12 * scale, "d = {d}: ({r}, {c}): {} vs {}", fast[(r, c)], slow.re);
                 }
             }
+        }
+    }
+}
+
+#[cfg(test)]
+mod frame_tests {
+    use super::*;
+    use crate::prng::SplitMix64;
+    use crate::spectrum::fft2;
+
+    /// The direct read equals the transform of the shifted copy, bit for bit.
+    #[test]
+    fn group_frame_spectrum_is_the_spectrum_of_the_shifted_image() {
+        let mut rng = SplitMix64(3);
+        let img = Image::new(6, 10, (0..60).map(|_| rng.normal()).collect());
+        for origin in [[0, 0], [1, 0], [0, 3], [5, 9], [2, 7]] {
+            assert_eq!(group_frame_spectrum(&img, origin), fft2(&to_group_frame(&img, origin)), "origin {origin:?}");
         }
     }
 }

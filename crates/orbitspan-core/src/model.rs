@@ -15,12 +15,12 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::Symmetry;
-use crate::fit::{check, from_group_frame, ratio, to_group_frame, validate};
+use crate::fit::{check, from_group_frame, group_frame_spectrum, ratio, validate};
 use crate::frame::frame_project;
 use crate::progress::Progress;
 use crate::report::ImageError;
 use crate::settings::FitSettings;
-use crate::spectrum::{fft2, ifft2_real};
+use crate::spectrum::ifft2_real;
 use crate::stack::{Image, Stack};
 use num_complex::Complex64;
 use serde::{Deserialize, Serialize};
@@ -117,10 +117,10 @@ impl Model {
     /// Fitted images `P_V f` of a batch (same order).
     fn project_batch(&self, images: &[&Image]) -> Vec<Image> {
         let origin = self.settings.origin;
-        let mut spectra: Vec<Vec<Complex64>> = images.iter().map(|img| fft2(&to_group_frame(img, origin))).collect();
+        let mut spectra: Vec<Vec<Complex64>> = images.iter().map(|img| group_frame_spectrum(img, origin)).collect();
         let generator_spectra = self.spectra.get_or_init(|| {
             let origin = self.settings.origin;
-            self.generators.iter().map(|g| fft2(&to_group_frame(g, origin))).collect()
+            self.generators.iter().map(|g| group_frame_spectrum(g, origin)).collect()
         });
         frame_project(&self.symmetry, generator_spectra, &mut spectra);
         spectra
