@@ -268,8 +268,9 @@ pub fn worker_threads() -> usize {
 /// and hands each result to `consume(k, result)` on the calling thread (in
 /// completion order; `work` must not depend on the order). Each `work(k)` is
 /// computed by the same code whatever the thread count, so results are
-/// bit-identical with one thread or many. `consume` returning an error stops
-/// the remaining work and returns that error.
+/// bit-identical with one thread or many. At most about twice `threads`
+/// results exist at once. `consume` returning an error stops the remaining
+/// work and returns that error.
 pub(crate) fn for_each_parallel<T: Send, E>(
     count: usize,
     work: impl Fn(usize) -> T + Sync,
@@ -286,7 +287,10 @@ pub(crate) fn for_each_parallel<T: Send, E>(
     let next = AtomicUsize::new(0);
     let stop = AtomicBool::new(false);
     std::thread::scope(|scope| {
-        let (sender, receiver) = std::sync::mpsc::channel();
+        // Bounded: at most `threads` finished results wait for `consume`
+        // (a worker blocks until there is room), so results that are made
+        // faster than they are consumed do not pile up in memory.
+        let (sender, receiver) = std::sync::mpsc::sync_channel(threads);
         for _ in 0..threads {
             let sender = sender.clone();
             let (next, stop, work) = (&next, &stop, &work);
