@@ -488,7 +488,7 @@ pub(crate) fn group_frame_spectrum(img: &Image, origin: [usize; 2]) -> Vec<Compl
     data
 }
 
-/// The inverse of [`to_group_frame`].
+/// Moves pixel `(0, 0)` back to `origin`: `out(x) = f(x − origin)`.
 pub(crate) fn from_group_frame(img: &Image, origin: [usize; 2]) -> Image {
     img.shifted(origin[0], origin[1])
 }
@@ -543,8 +543,11 @@ pub(crate) fn solve_orbit(
     let mut untwisted: Option<(DMatrix<f64>, Vec<Complex64>, Vec<Gather>)> = None;
     // Gram path, the same orbits: the real Gram matrix `UᵀU`, `U` and `S`.
     let mut untwisted_gram: Option<(DMatrix<f64>, DMatrix<f64>, Vec<Complex64>)> = None;
-    let (x, ops, y) = if use_gram && orbit.stabiliser.len() <= 1 && mirror_halves(sym, orbit, fibers, &point_gathers).is_some() {
-        let (primary, d) = mirror_halves(sym, orbit, fibers, &point_gathers).expect("checked above");
+    let gram_couples = match use_gram && orbit.stabiliser.len() <= 1 {
+        true => mirror_halves(sym, orbit, fibers, &point_gathers),
+        false => None,
+    };
+    let (x, ops, y) = if let Some((primary, d)) = gram_couples {
         let s: Vec<Complex64> = d.iter().map(|z| z.sqrt()).collect();
         let u = untwisted_gram_vectors(&primary, spectra, &s);
         let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
@@ -603,11 +606,12 @@ pub(crate) fn solve_orbit(
     // A trivial stabiliser gives one block with the identity as basis.
     let whole = blocks.len() == 1 && ops.len() <= 1;
     for b in &blocks {
+        if real_moment.is_some() && !whole {
+            return Err(Error::Internal(format!("fiber {:?}: a trivial stabiliser gave {} isotypic blocks", orbit.rep, blocks.len())));
+        }
         let eig = if let Some((real, s, _)) = &untwisted {
-            assert!(whole, "a trivial stabiliser has one isotypic block");
             untwisted_eigen(real.clone(), s)
         } else if let Some((gram, ..)) = &untwisted_gram {
-            assert!(whole, "a trivial stabiliser has one isotypic block");
             let eig = nalgebra::SymmetricEigen::new(gram.clone());
             Eigen { eigenvalues: eig.eigenvalues, eigenvectors: eig.eigenvectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(eig.eigenvectors) }
         } else if whole {
