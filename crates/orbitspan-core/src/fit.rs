@@ -598,7 +598,7 @@ pub(crate) fn solve_orbit(
     let mut tail = 0.0;
     let mut layer_vectors: Vec<Vec<DVector<Complex64>>> = vec![Vec::new(); lmax];
     let mut real_layer_vectors: Vec<Vec<DVector<f64>>> = vec![Vec::new(); lmax];
-    // Per block: its eigenvectors, and which were kept (by layer) or not.
+    // Per block: its eigenvectors, the kept ones by layer, and which were kept.
     let mut decompositions = Vec::with_capacity(blocks.len());
     let mut kept_count = 0;
     // The energy of the eigenvectors not kept: Σ_i (image i's discarded energy).
@@ -653,9 +653,9 @@ pub(crate) fn solve_orbit(
             kept[e] = true;
         }
         left_out += (0..kept.len()).filter(|&e| !kept[e]).map(|e| eig.eigenvalues[e].max(0.0)).sum::<f64>();
-        decompositions.push((eig, groups));
+        decompositions.push((eig, groups, kept));
     }
-    for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
+    for (b, (eig, groups, _)) in blocks.iter().zip(&decompositions) {
         // One product per (block, layer): its shape does not depend on how
         // many layers are kept, so the generators for L are bit-identical to
         // the first L for L + 1.
@@ -715,12 +715,8 @@ pub(crate) fn solve_orbit(
     // much as `v_p`: the couples' first points, counted twice, with the
     // real vectors `u` against `w = Sᴴ v` (one real product, not four).
     if let Some((_, s, primary)) = &untwisted {
-        let (eig, groups) = &decompositions[0];
+        let (eig, _, kept) = &decompositions[0];
         let real = eig.untwisted.as_ref().expect("the untwisted decomposition keeps its real eigenvectors");
-        let mut kept = vec![false; eig.eigenvalues.len()];
-        for &e in groups.iter().flat_map(|g| &g.1) {
-            kept[e] = true;
-        }
         let complement = d - kept_count < kept_count;
         let chosen: Vec<usize> = (0..kept.len()).filter(|&e| kept[e] != complement).collect();
         let basis = DMatrix::from_fn(d, chosen.len(), |row, c| real[(row, chosen[c])]);
@@ -730,11 +726,7 @@ pub(crate) fn solve_orbit(
     }
     let discard = if y.is_none() && untwisted_gram.is_none() && d - kept_count < kept_count {
         let mut columns = Vec::with_capacity(d - kept_count);
-        for (b, (eig, groups)) in blocks.iter().zip(&decompositions) {
-            let mut kept = vec![false; eig.eigenvalues.len()];
-            for &e in groups.iter().flat_map(|g| &g.1) {
-                kept[e] = true;
-            }
+        for (b, (eig, _, kept)) in blocks.iter().zip(&decompositions) {
             let rest: Vec<usize> = (0..kept.len()).filter(|&e| !kept[e]).collect();
             if rest.is_empty() {
                 continue;
@@ -1002,7 +994,7 @@ fn per_image_discarded(point_gathers: &[Gather], spectra: &[Vec<Complex64>], dis
 fn per_image_discarded_untwisted(gathers: &[Gather], spectra: &[Vec<Complex64>], s: &[Complex64], discard: &Discard<f64>) -> Vec<f64> {
     let mut out = vec![0.0; spectra.len()];
     let phases = untwisted_phases(gathers, s);
-    let pairs: Vec<(usize, usize)> = (0..gathers.len()).flat_map(|g| (0..spectra.len()).map(move |i| (g, i))).collect();
+    let pairs = gather_image_pairs(gathers.len(), spectra.len());
     let basis = discard.basis();
     let basis_t = basis.transpose();
     for chunk in pairs.chunks(POOL_BLOCK) {
@@ -1065,7 +1057,7 @@ pub(crate) fn pooled_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>]) 
 pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>], s: &[Complex64]) -> DMatrix<f64> {
     let d = s.len();
     let phases = untwisted_phases(gathers, s);
-    let pairs: Vec<(usize, usize)> = (0..gathers.len()).flat_map(|g| (0..spectra.len()).map(move |i| (g, i))).collect();
+    let pairs = gather_image_pairs(gathers.len(), spectra.len());
     let mut out = DMatrix::<f64>::zeros(d, d);
     let h = d / 2;
     for chunk in pairs.chunks(POOL_BLOCK) {
@@ -1095,12 +1087,18 @@ pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>
 /// matrix and `S (U a)` a layer vector.
 fn untwisted_gram_vectors(primary: &[Gather], spectra: &[Vec<Complex64>], s: &[Complex64]) -> DMatrix<f64> {
     let phases = untwisted_phases(primary, s);
-    let pairs: Vec<(usize, usize)> = (0..primary.len()).flat_map(|g| (0..spectra.len()).map(move |i| (g, i))).collect();
+    let pairs = gather_image_pairs(primary.len(), spectra.len());
     let mut u = untwisted_block(primary, &phases, spectra, &pairs);
     for (c, mut col) in u.column_iter_mut().enumerate() {
         col *= if c % 2 == 0 { std::f64::consts::SQRT_2 } else { -std::f64::consts::SQRT_2 };
     }
     u
+}
+
+/// Every `(gather, image)` pair, gather-major: the columns of the blocks of
+/// [`untwisted_block`].
+fn gather_image_pairs(gathers: usize, images: usize) -> Vec<(usize, usize)> {
+    (0..gathers).flat_map(|g| (0..images).map(move |i| (g, i))).collect()
 }
 
 /// Per gather, its phases times `conj(S)`: `w = Sᴴ v` is gathered directly.
