@@ -21,9 +21,10 @@ use crate::isotypic::{isotypic_blocks, Monomial};
 use crate::model::Model;
 use crate::progress::Progress;
 use crate::report::{BandReport, CurvePoint, GeneratorInfo, ImageError, Report};
-use crate::pair_fibers::{self, PairFibers};
+use crate::pair_fibers::{self, ImagePlace, PairFibers};
+use std::sync::Mutex;
 use crate::settings::{BandSpec, FitSettings};
-use crate::spectrum::fft2_in_place;
+use crate::spectrum::PackedPair;
 use crate::stack::{Image, Stack};
 use nalgebra::{DMatrix, DVector};
 use num_complex::Complex64;
@@ -194,45 +195,71 @@ impl Prepared {
         let orbits = sym.orbits();
         let pairs = orbit_pairs(&sym, &orbits);
         let m = stack.len();
-        let spectrum = |img: &Image| group_frame_spectrum(img, settings.origin);
+        // Images two at a time, as one complex transform (`PackedPair`).
+        let pair_count = m.div_ceil(2);
+        let transform = |k: usize| {
+            let images = stack.images();
+            PackedPair::transform(&images[2 * k], images.get(2 * k + 1), settings.origin)
+        };
         let by_power = matches!(settings.band, Some(BandSpec::Frequencies(_)));
         let band: Option<Band> = match &settings.band {
             Some(spec) => {
                 let mut power = Vec::new();
                 if by_power {
                     power = vec![0.0; h * w];
-                    for (i, img) in stack.images().iter().enumerate() {
-                        check(progress, "transforming images", i as f64 / (2 * m) as f64)?;
-                        for (p, z) in power.iter_mut().zip(&spectrum(img)) {
-                            *p += z.norm_sqr();
-                        }
+                    for k in 0..pair_count {
+                        check(progress, "transforming images", k as f64 / (2 * pair_count) as f64)?;
+                        transform(k).add_power(&mut power);
                     }
                 }
                 Some(band::select(&sym, spec, &power, settings.group.symbol.is_hexagonal())?)
             }
             None => None,
         };
-        let (done, total) = if by_power { (m, 2 * m) } else { (0, m) };
+        let (done, total) = if by_power { (pair_count, 2 * pair_count) } else { (0, pair_count) };
         let mut fibers = PairFibers::new(&sym, &orbits, &pairs, m);
         let mut outside_per_image = vec![0.0; m];
-        // Images on threads, each stored in its own place as it arrives:
-        // the same values whatever the thread count or order.
+        // Pairs of images on threads, each image stored straight from the
+        // pair's transform into its own place: the same values whatever
+        // the thread count or order.
         check(progress, "transforming images", done as f64 / total as f64)?;
         let mut stored = 0;
+        let places: Vec<Mutex<Option<ImagePlace>>> = fibers.places().into_iter().map(|p| Mutex::new(Some(p))).collect();
+        let take = |i: usize| places[i].lock().expect("image place").take().expect("each image is stored once");
         for_each_parallel(
-            m,
-            |i| {
-                let mut s = spectrum(&stack.images()[i]);
-                let outside = band.as_ref().map_or(0.0, |b| b.restrict(&mut s));
-                (s, outside)
+            pair_count,
+            |k| {
+                let packed = transform(k);
+                let mut outside = [0.0; 2];
+                let mut whole = Vec::new();
+                for (second, i) in [false, true].into_iter().zip(2 * k..m.min(2 * k + 2)) {
+                    let value = |ix: usize, neg: usize| if second { packed.second_at(ix, neg) } else { packed.first_at(ix, neg) };
+                    match &band {
+                        Some(b) => {
+                            // The band zeroes whole frequencies: restrict
+                            // the image's whole spectrum, then store it.
+                            whole.resize(h * w, Complex64::new(0.0, 0.0));
+                            match second {
+                                false => packed.first_into(&mut whole),
+                                true => packed.second_into(&mut whole),
+                            }
+                            outside[second as usize] = b.restrict(&mut whole);
+                            take(i).fill(|ix, _| whole[ix]);
+                        }
+                        None => take(i).fill(value),
+                    }
+                }
+                outside
             },
-            |i, (s, outside)| {
-                fibers.set(i, &s);
-                outside_per_image[i] = outside;
+            |k, outside| {
+                for (i, o) in (2 * k..m.min(2 * k + 2)).zip(outside) {
+                    outside_per_image[i] = o;
+                }
                 stored += 1;
                 check(progress, "transforming images", (done + stored) as f64 / total as f64)
             },
         )?;
+        drop(places);
         fibers.finish_filling();
         Ok(Prepared {
             settings: settings.clone(),
@@ -476,16 +503,7 @@ pub(crate) fn to_group_frame(img: &Image, origin: [usize; 2]) -> Image {
 /// The spectrum of [`to_group_frame`]`(img, origin)`, read straight into
 /// the transform's buffer (no shifted copy of the image).
 pub(crate) fn group_frame_spectrum(img: &Image, origin: [usize; 2]) -> Vec<Complex64> {
-    let (h, w) = (img.height, img.width);
-    let mut data = Vec::with_capacity(h * w);
-    let o1 = origin[1] % w;
-    for r in 0..h {
-        let src = (r + origin[0]) % h;
-        let row = &img.pixels[src * w..(src + 1) * w];
-        data.extend(row[o1..].iter().chain(&row[..o1]).map(|&v| Complex64::new(v, 0.0)));
-    }
-    fft2_in_place(&mut data, h, w, false);
-    data
+    PackedPair::transform(img, None, origin).into_first()
 }
 
 /// Moves pixel `(0, 0)` back to `origin`: `out(x) = f(x − origin)`.

@@ -29,6 +29,8 @@ use crate::spectrum::ifft2_real_owned;
 use crate::stack::Image;
 use nalgebra::DMatrix;
 use num_complex::Complex64;
+use std::convert::Infallible;
+use std::sync::Mutex;
 
 /// A generator image with its realness check.
 pub(crate) struct Generator {
@@ -157,21 +159,34 @@ impl GeneratorSpectra {
         }
     }
 
-    /// The generator images, each spectrum dropped once transformed.
+    /// The generator images, transformed on threads natively, each spectrum
+    /// dropped once transformed. One transform per generator (not two real
+    /// images per complex transform): a generator's values must not depend
+    /// on which other generators exist, so that the generators for `L` are
+    /// bit-identical to the first `L` for `L + 1`.
     pub fn into_generators(self) -> Vec<Generator> {
         let [n1, n2] = self.torus;
         let mut phis = self.phis;
         if phis.is_empty() {
             phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; self.lmax];
         }
-        phis.reverse();
-        let mut out = Vec::with_capacity(self.lmax);
-        while let Some(phi) = phis.pop() {
-            let (image, imag) = ifft2_real_owned(phi, n1, n2);
-            let norm = image.energy().sqrt();
-            out.push(Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image });
-        }
-        out
+        let count = phis.len();
+        let slots: Vec<Mutex<Option<Vec<Complex64>>>> = phis.into_iter().map(|phi| Mutex::new(Some(phi))).collect();
+        let mut out: Vec<Option<Generator>> = (0..count).map(|_| None).collect();
+        let Ok(()) = for_each_parallel(
+            count,
+            |l| {
+                let phi = slots[l].lock().expect("generator spectrum").take().expect("each generator spectrum is taken once");
+                let (image, imag) = ifft2_real_owned(phi, n1, n2);
+                let norm = image.energy().sqrt();
+                Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image }
+            },
+            |l, generator| {
+                out[l] = Some(generator);
+                Ok::<(), Infallible>(())
+            },
+        );
+        out.into_iter().map(|g| g.expect("every generator transformed")).collect()
     }
 }
 

@@ -16,6 +16,7 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::{Orbit, Symmetry};
+use crate::spectrum::negative_index;
 use num_complex::Complex64;
 
 /// The fibers of a pair's points, in slot order (first orbit's points,
@@ -45,8 +46,10 @@ pub(crate) fn kept_len(sym: &Symmetry, orbits: &[Orbit], pair: &[usize]) -> usiz
 pub(crate) struct PairFibers {
     /// Per pair, image-major: `images x kept_len` values.
     data: Vec<Vec<Complex64>>,
-    /// Per pair, the spectrum indices of its kept values (while filling).
-    indices: Vec<Vec<u32>>,
+    /// Per pair, the spectrum indices of its kept values and of their
+    /// negatives (while filling).
+    indices: Vec<Vec<[u32; 2]>>,
+    images: usize,
 }
 
 impl PairFibers {
@@ -55,7 +58,8 @@ impl PairFibers {
     pub fn new(sym: &Symmetry, orbits: &[Orbit], pairs: &[Vec<usize>], images: usize) -> PairFibers {
         let l = sym.lattice();
         let dual = l.dual();
-        let indices: Vec<Vec<u32>> = pairs
+        let [n1, n2] = l.torus();
+        let indices: Vec<Vec<[u32; 2]>> = pairs
             .iter()
             .map(|pair| {
                 let points = pair_points(orbits, pair);
@@ -66,22 +70,36 @@ impl PairFibers {
                     .filter(|(_, k)| *k)
                     .flat_map(|(&f, _)| {
                         let rep = l.fiber_rep(f);
-                        dual.iter().map(move |&eta| l.linear(l.add(rep, eta)) as u32)
+                        dual.iter().map(move |&eta| {
+                            let i = l.linear(l.add(rep, eta));
+                            [i as u32, negative_index(i, n1, n2) as u32]
+                        })
                     })
                     .collect()
             })
             .collect();
-        PairFibers { data: indices.iter().map(|i| vec![Complex64::new(0.0, 0.0); i.len() * images]).collect(), indices }
+        PairFibers { data: indices.iter().map(|i| vec![Complex64::new(0.0, 0.0); i.len() * images]).collect(), indices, images }
     }
 
     /// Stores image `image`'s kept values from its (whole) spectrum.
+    #[cfg(test)]
     pub fn set(&mut self, image: usize, spectrum: &[Complex64]) {
+        self.places().swap_remove(image).fill(|i, _| spectrum[i]);
+    }
+
+    /// Each image's own place (every pair's slice for that image), so that
+    /// images can be stored at once from several threads.
+    pub fn places(&mut self) -> Vec<ImagePlace<'_>> {
+        let mut places: Vec<ImagePlace<'_>> = (0..self.images).map(|_| ImagePlace { slices: Vec::with_capacity(self.data.len()), indices: &self.indices }).collect();
         for (data, indices) in self.data.iter_mut().zip(&self.indices) {
-            let place = &mut data[image * indices.len()..(image + 1) * indices.len()];
-            for (d, &i) in place.iter_mut().zip(indices) {
-                *d = spectrum[i as usize];
+            if indices.is_empty() {
+                continue;
+            }
+            for (place, slice) in places.iter_mut().zip(data.chunks_mut(indices.len())) {
+                place.slices.push(slice);
             }
         }
+        places
     }
 
     /// Ends the filling (drops the index lists).
@@ -92,6 +110,25 @@ impl PairFibers {
     /// Pair `p`'s kept values, image-major.
     pub fn pair(&self, p: usize) -> &[Complex64] {
         &self.data[p]
+    }
+}
+
+/// One image's kept values in every pair, to be filled.
+pub(crate) struct ImagePlace<'a> {
+    /// Per pair with kept values, this image's slice.
+    slices: Vec<&'a mut [Complex64]>,
+    indices: &'a [Vec<[u32; 2]>],
+}
+
+impl ImagePlace<'_> {
+    /// Stores the image's kept values, `value(i, j)` being its spectrum at
+    /// row-major index `i` (`j` the index of the negative frequency).
+    pub fn fill(self, value: impl Fn(usize, usize) -> Complex64) {
+        for (slice, indices) in self.slices.into_iter().zip(self.indices.iter().filter(|i| !i.is_empty())) {
+            for (d, &[i, j]) in slice.iter_mut().zip(indices) {
+                *d = value(i as usize, j as usize);
+            }
+        }
     }
 }
 
