@@ -14,6 +14,7 @@
 //! (summing discarded eigenvalues, not subtracting).
 
 use crate::band::{self, Band};
+use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use crate::frame;
@@ -630,8 +631,8 @@ pub(crate) fn solve_orbit(
         let eig = if let Some((real, s, _)) = &untwisted {
             untwisted_eigen(real.clone(), s)
         } else if let Some((gram, ..)) = &untwisted_gram {
-            let eig = nalgebra::SymmetricEigen::new(gram.clone());
-            Eigen { eigenvalues: eig.eigenvalues, eigenvectors: eig.eigenvectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(eig.eigenvectors) }
+            let (eigenvalues, vectors) = eigen::symmetric(gram.clone());
+            Eigen { eigenvalues, eigenvectors: vectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(vectors) }
         } else if whole {
             hermitian_eigen(x.clone())
         } else {
@@ -819,8 +820,8 @@ struct Eigen {
 
 /// The eigen-decomposition of a Hermitian `C`.
 fn hermitian_eigen(c: DMatrix<Complex64>) -> Eigen {
-    let eig = nalgebra::SymmetricEigen::new(c);
-    Eigen { eigenvalues: eig.eigenvalues, eigenvectors: eig.eigenvectors, untwisted: None }
+    let (eigenvalues, eigenvectors) = eigen::hermitian(c);
+    Eigen { eigenvalues, eigenvectors, untwisted: None }
 }
 
 /// The eigen-decomposition of `C = S C' Sᴴ` from the real symmetric `C'`
@@ -828,9 +829,9 @@ fn hermitian_eigen(c: DMatrix<Complex64>) -> Eigen {
 /// about four times less arithmetic than the complex decomposition.
 fn untwisted_eigen(real: DMatrix<f64>, s: &[Complex64]) -> Eigen {
     let n = real.nrows();
-    let eig = nalgebra::SymmetricEigen::new(real);
-    let eigenvectors = DMatrix::from_fn(n, n, |a, e| s[a] * eig.eigenvectors[(a, e)]);
-    Eigen { eigenvalues: eig.eigenvalues, eigenvectors, untwisted: Some(eig.eigenvectors) }
+    let (eigenvalues, real_vectors) = eigen::symmetric(real);
+    let eigenvectors = DMatrix::from_fn(n, n, |a, e| s[a] * real_vectors[(a, e)]);
+    Eigen { eigenvalues, eigenvectors, untwisted: Some(real_vectors) }
 }
 
 /// `C = S C' Sᴴ` for a diagonal `S` (see [`untwisted_covariance`]).

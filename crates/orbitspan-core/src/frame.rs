@@ -21,6 +21,7 @@
 //! The frame projection is `P_V(ξ) = d⁻¹ Σ_{g,l} w_{g,l} w_{g,l}*` with
 //! `w_{g,l}` the fiber at `ξ` of `π(γ_g) φ_l`.
 
+use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use crate::fit::{adjoint_product, product, OrbitSolution};
@@ -76,19 +77,19 @@ const GOOD_CONDITIONING: f64 = 1e-4;
 /// the conditioning met (smallest over largest kept eigenvalue of `WᴴW`).
 fn orbit_generator(d: usize, rep_gathers: &[Gather], k: usize, psi: &[Complex64], y: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
     let w = gathered_matrix(rep_gathers, &[psi]);
-    let eig = nalgebra::SymmetricEigen::new(narrow_gram(&w));
-    let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
-    order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
-    let top = eig.eigenvalues[order[0]];
-    let kth = eig.eigenvalues[order[k - 1]];
+    let (eigenvalues, eigenvectors) = eigen::hermitian(narrow_gram(&w));
+    let mut order: Vec<usize> = (0..eigenvalues.len()).collect();
+    order.sort_by(|&i, &j| eigenvalues[j].total_cmp(&eigenvalues[i]));
+    let top = eigenvalues[order[0]];
+    let kth = eigenvalues[order[k - 1]];
     let ratio = if top > 0.0 && kth > 0.0 { kth / top } else { 0.0 };
-    let n = eig.eigenvalues.len();
+    let n = eigenvalues.len();
     // M = V Σ⁻³ Vᴴ over the top k eigenpairs; φ0 = √d W M (Wᴴ y).
     let mut m = DMatrix::<Complex64>::zeros(n, n);
     if ratio > 0.0 {
         for &e in &order[..k] {
-            let v = eig.eigenvectors.column(e);
-            let scale = Complex64::new(eig.eigenvalues[e].powf(-1.5), 0.0);
+            let v = eigenvectors.column(e);
+            let scale = Complex64::new(eigenvalues[e].powf(-1.5), 0.0);
             m += (v * scale) * v.adjoint();
         }
     }

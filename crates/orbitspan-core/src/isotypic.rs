@@ -14,6 +14,7 @@
 //! a complex type would merge with its conjugate and `m` would come out as
 //! `√2` times an integer.
 
+use crate::eigen;
 use crate::error::{Error, Result};
 use crate::prng::SplitMix64;
 use nalgebra::DMatrix;
@@ -134,9 +135,9 @@ fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<V
             }
         }
         let zh = (&z + z.adjoint()) * Complex64::new(0.5, 0.0);
-        let eig = nalgebra::SymmetricEigen::new(zh);
+        let (values, vectors) = eigen::hermitian(zh);
         for e in 0..k {
-            pairs.push((eig.eigenvalues[e], o, eig.eigenvectors.column(e).iter().copied().collect()));
+            pairs.push((values[e], o, vectors.column(e).iter().copied().collect()));
         }
     }
     pairs.sort_by(|p, q| p.0.total_cmp(&q.0));

@@ -13,6 +13,7 @@ pub mod report;
 pub mod lattice;
 pub mod spectrum;
 pub mod isotypic;
+pub(crate) mod eigen;
 pub mod fiber;
 pub mod band;
 pub mod fit;
