@@ -2,10 +2,9 @@
 //! `A = V Λ Vᴴ` with `V` unitary (orthogonal) and `Λ` real.
 //!
 //! Every orbit's covariance or Gram matrix is decomposed here. Above a
-//! size, or for any complex matrix, the decomposition is faer's (Householder
-//! tridiagonalisation, then divide and conquer on the tridiagonal matrix);
-//! small real matrices use nalgebra's `SymmetricEigen` (implicit QR), which
-//! is as fast there. nalgebra's is also the slow obvious reference in the
+//! size the decomposition is faer's (Householder tridiagonalisation, then
+//! divide and conquer on the tridiagonal matrix); small matrices use
+//! nalgebra's `SymmetricEigen` (implicit QR), which is as fast there. nalgebra's is also the slow obvious reference in the
 //! tests: on complex matrices it is 8 to 25 times slower than faer's from
 //! 48x48 to 256x256 (measured here, one run), which is what made the
 //! switch worth a dependency. faer runs sequentially here (no thread pool),
@@ -18,6 +17,14 @@ use num_complex::Complex64;
 /// about equal speed at 64, 1.2x faster at 96, 2.5x at 256; nalgebra
 /// faster below 48).
 const REAL_FAER_FROM: usize = 96;
+
+/// Complex matrices from this size up go to faer (one measurement here:
+/// 1.1x faster at 16, 1.5x at 32, 8x at 48, 25x at 256). Below it the gain
+/// is small while faer's matrix products add their per-thread scratch
+/// buffers: with 40 the small-patch workload (three 40x40 blocks per fit)
+/// fitted in the same time and peaked 8 MB higher (7.7 against 5.7 times
+/// its stack's f32 size, three runs each).
+const COMPLEX_FAER_FROM: usize = 48;
 
 /// Eigenvalues (in no particular order) and orthonormal eigenvectors
 /// (columns, in the eigenvalues' order) of the real symmetric `a`; only its
@@ -35,8 +42,11 @@ pub(crate) fn symmetric(a: DMatrix<f64>) -> (DVector<f64>, DMatrix<f64>) {
 /// Eigenvalues and orthonormal eigenvectors of the Hermitian `a` (lower
 /// triangle read).
 pub(crate) fn hermitian(a: DMatrix<Complex64>) -> (DVector<f64>, DMatrix<Complex64>) {
-    if let Some((values, vectors)) = with_faer(&a) {
-        return (values.map(|z| z.re), vectors);
+    let n = a.nrows();
+    if n >= COMPLEX_FAER_FROM || n == 0 {
+        if let Some((values, vectors)) = with_faer(&a) {
+            return (values.map(|z| z.re), vectors);
+        }
     }
     reference_hermitian(a)
 }
@@ -128,8 +138,8 @@ mod tests {
     }
 
     #[test]
-    fn complex_decompositions_match_the_reference() {
-        for (n, k) in [(0, 0), (1, 1), (6, 6), (33, 10), (64, 64), (100, 30)] {
+    fn complex_decompositions_match_the_reference_on_both_sides_of_the_switch() {
+        for (n, k) in [(0, 0), (1, 1), (6, 6), (33, 10), (47, 47), (48, 48), (64, 64), (100, 30)] {
             let a = wishart_complex(n, k, 29 + n as u64);
             let (values, vectors) = hermitian(a.clone());
             if n == 0 {
