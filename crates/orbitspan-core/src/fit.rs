@@ -23,12 +23,12 @@ use crate::model::Model;
 use crate::progress::Progress;
 use crate::report::{BandReport, CurvePoint, GeneratorInfo, ImageError, Report};
 use crate::pair_fibers::{self, ImagePlace, PairFibers};
-use std::sync::Mutex;
 use crate::settings::{BandSpec, FitSettings};
 use crate::spectrum::PackedPair;
 use crate::stack::{Image, Stack};
 use nalgebra::{DMatrix, DVector};
 use num_complex::Complex64;
+use std::sync::Mutex;
 
 /// Which matrix to decompose per orbit: the `d x d` covariance or the
 /// `m|G| x m|G|` Gram matrix. `Auto` takes the smaller; the others exist so

@@ -61,8 +61,9 @@ pub fn fft2_in_place(data: &mut [Complex64], n1: usize, n2: usize, inverse: bool
 }
 
 /// The spectra of two real images of one size from one complex transform
-/// (common practice; e.g. Press et al., Numerical Recipes, §12.3, "FFT of
-/// two real functions simultaneously"). With `z = a + i b`,
+/// (common practice; e.g. Press et al., Numerical Recipes, "FFT of two
+/// real functions simultaneously", §12.3 in the second edition, section
+/// number from memory). With `z = a + i b`,
 /// `â(ξ) = (ẑ(ξ) + conj ẑ(−ξ)) / 2` and `b̂(ξ) = (ẑ(ξ) − conj ẑ(−ξ)) / 2i`.
 /// Both are Hermitian (`â(−ξ) = conj â(ξ)`), so one array holds both: for
 /// `ξ` before `−ξ` in row-major order, `â(ξ)` at `ξ` and `b̂(ξ)` at `−ξ`;
@@ -99,12 +100,13 @@ impl PackedPair {
         }
         let mut data = Vec::with_capacity(n1 * n2);
         let o1 = if n2 == 0 { 0 } else { origin[1] % n2 };
+        // Row `src` of `img`, starting at column `o1` and wrapping around.
+        fn rotated_row(img: &Image, src: usize, o1: usize) -> impl Iterator<Item = f64> + '_ {
+            let row = &img.pixels[src * img.width..(src + 1) * img.width];
+            row[o1..].iter().chain(&row[..o1]).copied()
+        }
         for r in 0..n1 {
             let src = (r + origin[0]) % n1;
-            fn rotated_row(img: &Image, src: usize, o1: usize) -> impl Iterator<Item = f64> + '_ {
-                let row = &img.pixels[src * img.width..(src + 1) * img.width];
-                row[o1..].iter().chain(&row[..o1]).copied()
-            }
             let shifted = |img| rotated_row(img, src, o1);
             match b {
                 Some(b) => data.extend(shifted(a).zip(shifted(b)).map(|(x, y)| Complex64::new(x, y))),
