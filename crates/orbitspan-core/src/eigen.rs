@@ -36,7 +36,7 @@ pub(crate) fn symmetric(a: DMatrix<f64>) -> (DVector<f64>, DMatrix<f64>) {
             return done;
         }
     }
-    reference_symmetric(a)
+    reference(a)
 }
 
 /// Eigenvalues and orthonormal eigenvectors of the Hermitian `a` (lower
@@ -48,17 +48,11 @@ pub(crate) fn hermitian(a: DMatrix<Complex64>) -> (DVector<f64>, DMatrix<Complex
             return (values.map(|z| z.re), vectors);
         }
     }
-    reference_hermitian(a)
+    reference(a)
 }
 
-/// nalgebra's decomposition (the reference), real.
-pub(crate) fn reference_symmetric(a: DMatrix<f64>) -> (DVector<f64>, DMatrix<f64>) {
-    let eig = nalgebra::SymmetricEigen::new(a);
-    (eig.eigenvalues, eig.eigenvectors)
-}
-
-/// nalgebra's decomposition (the reference), complex.
-pub(crate) fn reference_hermitian(a: DMatrix<Complex64>) -> (DVector<f64>, DMatrix<Complex64>) {
+/// nalgebra's decomposition (the reference), real or complex.
+pub(crate) fn reference<T: nalgebra::ComplexField<RealField = f64>>(a: DMatrix<T>) -> (DVector<f64>, DMatrix<T>) {
     let eig = nalgebra::SymmetricEigen::new(a);
     (eig.eigenvalues, eig.eigenvectors)
 }
@@ -123,32 +117,34 @@ mod tests {
         }
     }
 
-    #[test]
-    fn real_decompositions_match_the_reference_on_both_sides_of_the_switch() {
-        for (n, k) in [(0, 0), (1, 1), (5, 5), (40, 12), (63, 63), (64, 64), (70, 20), (130, 130)] {
-            let a = wishart_real(n, k, 11 + n as u64);
-            let (values, vectors) = symmetric(a.clone());
+    /// Each `(n, rank)` case: `decompose` against the reference by [`check`]
+    /// (an empty matrix gives empty results).
+    fn compare<T>(cases: &[(usize, usize)], make: impl Fn(usize, usize) -> DMatrix<T>, decompose: impl Fn(DMatrix<T>) -> (DVector<f64>, DMatrix<T>), kind: &str)
+    where
+        T: nalgebra::ComplexField<RealField = f64> + Copy,
+    {
+        for &(n, k) in cases {
+            let a = make(n, k);
+            let (values, vectors) = decompose(a.clone());
             if n == 0 {
                 assert_eq!((values.len(), vectors.shape()), (0, (0, 0)));
                 continue;
             }
-            let (reference, _) = reference_symmetric(a.clone());
-            check(&a, &values, &vectors, &reference, &format!("real {n}x{n}, rank {k}"));
+            let (expected, _) = reference(a.clone());
+            check(&a, &values, &vectors, &expected, &format!("{kind} {n}x{n}, rank {k}"));
         }
     }
 
     #[test]
+    fn real_decompositions_match_the_reference_on_both_sides_of_the_switch() {
+        let cases = [(0, 0), (1, 1), (5, 5), (40, 12), (63, 63), (64, 64), (70, 20), (130, 130)];
+        compare(&cases, |n, k| wishart_real(n, k, 11 + n as u64), symmetric, "real");
+    }
+
+    #[test]
     fn complex_decompositions_match_the_reference_on_both_sides_of_the_switch() {
-        for (n, k) in [(0, 0), (1, 1), (6, 6), (33, 10), (47, 47), (48, 48), (64, 64), (100, 30)] {
-            let a = wishart_complex(n, k, 29 + n as u64);
-            let (values, vectors) = hermitian(a.clone());
-            if n == 0 {
-                assert_eq!((values.len(), vectors.shape()), (0, (0, 0)));
-                continue;
-            }
-            let (reference, _) = reference_hermitian(a.clone());
-            check(&a, &values, &vectors, &reference, &format!("complex {n}x{n}, rank {k}"));
-        }
+        let cases = [(0, 0), (1, 1), (6, 6), (33, 10), (47, 47), (48, 48), (64, 64), (100, 30)];
+        compare(&cases, |n, k| wishart_complex(n, k, 29 + n as u64), hermitian, "complex");
     }
 
     #[test]
@@ -161,16 +157,16 @@ mod tests {
             }
         }
         let (values, _) = hermitian(spoiled);
-        let (reference, _) = reference_hermitian(a);
-        for (x, y) in sorted(&values).iter().zip(sorted(&reference)) {
+        let (expected, _) = reference(a);
+        for (x, y) in sorted(&values).iter().zip(sorted(&expected)) {
             assert!((x - y).abs() < 1e-10 * y.abs().max(1.0), "{x} against {y}");
         }
         let b = wishart_real(80, 80, 6);
         let mut spoiled = b.clone();
         spoiled[(0, 79)] = f64::NAN;
         let (values, _) = symmetric(spoiled);
-        let (reference, _) = reference_symmetric(b);
-        for (x, y) in sorted(&values).iter().zip(sorted(&reference)) {
+        let (expected, _) = reference(b);
+        for (x, y) in sorted(&values).iter().zip(sorted(&expected)) {
             assert!((x - y).abs() < 1e-10 * y.abs().max(1.0), "{x} against {y}");
         }
     }
