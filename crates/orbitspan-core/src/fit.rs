@@ -304,7 +304,8 @@ impl Prepared {
             curve.push(CurvePoint { generators: l, error, relative_error: ratio(error, total_energy) });
         }
         check(progress, "building generators", 0.0)?;
-        let generators = generators.into_generators();
+        let defects: Vec<f64> = (0..lmax).map(|l| results.iter().map(|s| s.realness_defect[l]).sum()).collect();
+        let generators = generators.into_generators(&defects);
         check(progress, "building generators", 1.0)?;
         let layer_dims: Vec<usize> = (0..lmax)
             .map(|l| self.orbits.iter().zip(&results).map(|(o, s)| o.points.len() * s.layer_dims[l]).sum())
@@ -404,6 +405,10 @@ pub(crate) struct OrbitResult {
     /// point `j` (columns; none for an empty layer). Emptied once written
     /// into the generator spectra ([`Collected::absorb`]).
     pub generator: Vec<(u64, DMatrix<Complex64>)>,
+    /// Per layer, this orbit's part of the realness defect (see
+    /// [`frame::make_hermitian`]), measured before its share was made
+    /// conjugate-symmetric.
+    pub realness_defect: Vec<f64>,
 }
 
 /// Solves the orbits of one pair (see [`orbit_pairs`]): decomposition, then
@@ -432,8 +437,16 @@ pub(crate) fn solve_pair(
                 tail: solution.tail,
                 image_discarded: solution.image_discarded,
                 generator,
+                realness_defect: Vec::new(),
             },
         ));
+    }
+    // Each orbit's frequencies against their negatives in the conjugate orbit.
+    let pair_orbits: Vec<&Orbit> = out.iter().map(|(o, _)| &orbits[*o]).collect();
+    let mut shares: Vec<&mut Vec<(u64, DMatrix<Complex64>)>> = out.iter_mut().map(|(_, r)| &mut r.generator).collect();
+    let defects = frame::make_hermitian(sym, &pair_orbits, &mut shares);
+    for ((_, result), defect) in out.iter_mut().zip(defects) {
+        result.realness_defect = defect;
     }
     Ok(out)
 }

@@ -26,7 +26,7 @@ use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use crate::fit::{adjoint_product, product, OrbitSolution};
 use crate::prng::SplitMix64;
-use crate::spectrum::ifft2_real_owned;
+use crate::spectrum::{half_width, ifft2_half_real, negative_index};
 use crate::stack::Image;
 use nalgebra::DMatrix;
 use num_complex::Complex64;
@@ -134,10 +134,13 @@ impl References {
 /// (origin at (0,0)), written orbit by orbit from each orbit's share (see
 /// [`orbit_generators`]): each orbit writes only its own fibers, so the
 /// result does not depend on where or in which order the shares were made.
+/// The generators are real, so only half of each spectrum is kept (the
+/// columns `ξ2 = 0..=n2/2`, see [`half_width`]); the conjugate symmetry that
+/// this takes for granted is measured per orbit ([`make_hermitian`]).
 pub(crate) struct GeneratorSpectra {
     torus: [usize; 2],
     lmax: usize,
-    /// Per layer, made on the first write.
+    /// Per layer, the half spectrum, made on the first write.
     phis: Vec<Vec<Complex64>>,
 }
 
@@ -146,30 +149,42 @@ impl GeneratorSpectra {
         GeneratorSpectra { torus, lmax, phis: Vec::new() }
     }
 
-    /// Writes one orbit's share: per layer, `φ_l(ξ_j) = T_j` applied to column `j`.
+    /// Writes one orbit's share: per layer, `φ_l(ξ_j) = T_j` applied to
+    /// column `j`, at the frequencies in the kept half.
     pub fn write(&mut self, sym: &Symmetry, orbit: &Orbit, share: &[(u64, DMatrix<Complex64>)]) {
+        let [n1, n2] = self.torus;
+        let h2 = half_width(n2);
         if self.phis.is_empty() {
-            let [n1, n2] = self.torus;
-            self.phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; self.lmax];
+            self.phis = vec![vec![Complex64::new(0.0, 0.0); n1 * h2]; self.lmax];
         }
         let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
         for (phi, (_, fibers)) in self.phis.iter_mut().zip(share) {
             for (transport, v) in transports.iter().zip(fibers.column_iter()) {
-                transport.scatter(v.as_slice(), phi);
+                for ((&i, &p), &x) in transport.index.iter().zip(&transport.phase).zip(v.iter()) {
+                    let (r, c) = (i / n2, i % n2);
+                    if c < h2 {
+                        phi[r * h2 + c] = p.conj() * x;
+                    }
+                }
             }
         }
     }
 
     /// The generator images, transformed on threads natively, each spectrum
-    /// dropped once transformed. One transform per generator (not two real
-    /// images per complex transform): a generator's values must not depend
-    /// on which other generators exist, so that the generators for `L` are
-    /// bit-identical to the first `L` for `L + 1`.
-    pub fn into_generators(self) -> Vec<Generator> {
+    /// dropped once transformed. `defects[l]` is
+    /// `Σ_ξ |φ̂_l(ξ) − conj φ̂_l(−ξ)|²` over every frequency (the orbits'
+    /// [`make_hermitian`]s): by Parseval the imaginary part that the
+    /// inverse transform of the whole spectrum would have left has norm
+    /// `(defect / 4|T|)^{1/2}`, reported relative to `||φ_l||` (an upper
+    /// bound of its largest value). One transform per generator (not two
+    /// generators per complex transform): a generator's values must not
+    /// depend on which other generators exist, so that the generators for
+    /// `L` are bit-identical to the first `L` for `L + 1`.
+    pub fn into_generators(self, defects: &[f64]) -> Vec<Generator> {
         let [n1, n2] = self.torus;
         let mut phis = self.phis;
         if phis.is_empty() {
-            phis = vec![vec![Complex64::new(0.0, 0.0); n1 * n2]; self.lmax];
+            phis = vec![vec![Complex64::new(0.0, 0.0); n1 * half_width(n2)]; self.lmax];
         }
         let count = phis.len();
         let slots: Vec<Mutex<Option<Vec<Complex64>>>> = phis.into_iter().map(|phi| Mutex::new(Some(phi))).collect();
@@ -178,9 +193,10 @@ impl GeneratorSpectra {
             count,
             |l| {
                 let phi = slots[l].lock().expect("generator spectrum").take().expect("each generator spectrum is taken once");
-                let (image, imag) = ifft2_real_owned(phi, n1, n2);
+                let image = ifft2_half_real(phi, n1, n2);
                 let norm = image.energy().sqrt();
-                Generator { imaginary_part: if norm > 0.0 { imag / norm } else { 0.0 }, image }
+                let imaginary = (defects[l].max(0.0) / (4.0 * (n1 * n2) as f64)).sqrt();
+                Generator { imaginary_part: if norm > 0.0 { imaginary / norm } else { 0.0 }, image }
             },
             |l, generator| {
                 out[l] = Some(generator);
@@ -189,6 +205,110 @@ impl GeneratorSpectra {
         );
         out.into_iter().map(|g| g.expect("every generator transformed")).collect()
     }
+}
+
+/// Makes the shares of one pair of conjugate orbits (see
+/// [`crate::fit::orbit_pairs`]; one orbit when it is its own conjugate)
+/// conjugate-symmetric, and measures by how much they were not.
+///
+/// A real generator has `φ̂(−ξ) = conj φ̂(ξ)`; the shares meet it up to
+/// round-off of the layer bases, which is large where the eigenvalues are
+/// tiny. Each value becomes the Hermitian part `(φ̂(ξ) + conj φ̂(−ξ)) / 2`:
+/// the spectrum of the real part of the generator, which is what the
+/// inverse transform of the whole spectrum followed by dropping the
+/// imaginary part would give. (Keeping `φ̂(ξ)` on one half of the spectrum
+/// instead would mix, within one fiber, entries of two slightly different
+/// Parseval vectors: a first-order error in the frame, where the Hermitian
+/// part's is second-order.) Returns per orbit and layer
+/// `Σ_ξ |φ̂_l(ξ) − conj φ̂_l(−ξ)|²` over the orbit's frequencies, before the
+/// change. A layer without a share counts as zeros.
+pub(crate) fn make_hermitian(sym: &Symmetry, orbits: &[&Orbit], shares: &mut [&mut Vec<(u64, DMatrix<Complex64>)>]) -> Vec<Vec<f64>> {
+    assert!(matches!(orbits.len(), 1 | 2) && orbits.len() == shares.len(), "one orbit or a conjugate pair");
+    let [n1, n2] = sym.lattice().torus();
+    let d = sym.lattice().fiber_len();
+    // Per orbit, the indices and phases of its shares' entries, column-major
+    // like the shares: entry `j d + k` is point `j`, position `k`, and
+    // `φ̂[index] = conj(phase) · share[(k, j)]`.
+    let entries: Vec<Gather> = orbits
+        .iter()
+        .map(|o| {
+            let mut all = Gather { index: Vec::with_capacity(o.points.len() * d), phase: Vec::with_capacity(o.points.len() * d) };
+            for &(_, op) in &o.points {
+                let t = sym.gather(o.rep, op);
+                all.index.extend_from_slice(&t.index);
+                all.phase.extend_from_slice(&t.phase);
+            }
+            all
+        })
+        .collect();
+    // Per orbit and entry, the entry of the conjugate orbit at `−ξ`.
+    let mirrors: Vec<Vec<usize>> = POSITIONS.with(|table| {
+        let mut table = table.borrow_mut();
+        if table.len() != n1 * n2 {
+            *table = vec![u32::MAX; n1 * n2];
+        }
+        (0..orbits.len())
+            .map(|x| {
+                let y = orbits.len() - 1 - x;
+                for (e, &i) in entries[y].index.iter().enumerate() {
+                    table[i] = u32::try_from(e).expect("fewer entries than frequencies");
+                }
+                let found: Vec<usize> = entries[x]
+                    .index
+                    .iter()
+                    .map(|&i| table[negative_index(i, n1, n2)])
+                    .map(|e| {
+                        assert!(e != u32::MAX, "the conjugate orbit holds every negative frequency");
+                        e as usize
+                    })
+                    .collect();
+                for &i in &entries[y].index {
+                    table[i] = u32::MAX;
+                }
+                found
+            })
+            .collect()
+    });
+    let zero = Complex64::new(0.0, 0.0);
+    let layers = shares[0].len();
+    let mut defects = vec![vec![0.0; layers]; orbits.len()];
+    for l in 0..layers {
+        let updated: Vec<Option<DMatrix<Complex64>>> = (0..orbits.len())
+            .map(|x| {
+                let y = orbits.len() - 1 - x;
+                let (mine, theirs) = (&shares[x][l].1, &shares[y][l].1);
+                if mine.ncols() == 0 && theirs.ncols() == 0 {
+                    return None;
+                }
+                let value = |z: usize, share: &DMatrix<Complex64>, e: usize| match share.ncols() {
+                    0 => zero,
+                    _ => entries[z].phase[e].conj() * share.as_slice()[e],
+                };
+                let mut out = DMatrix::<Complex64>::zeros(d, orbits[x].points.len());
+                let mut defect = 0.0;
+                for (e, (o, &mirror)) in out.as_mut_slice().iter_mut().zip(&mirrors[x]).enumerate() {
+                    let v = value(x, mine, e);
+                    let w = value(y, theirs, mirror).conj();
+                    defect += (v - w).norm_sqr();
+                    *o = entries[x].phase[e] * ((v + w) * 0.5);
+                }
+                defects[x][l] = defect;
+                Some(out)
+            })
+            .collect();
+        for (share, new) in shares.iter_mut().zip(updated) {
+            if let Some(new) = new {
+                share[l].1 = new;
+            }
+        }
+    }
+    defects
+}
+
+thread_local! {
+    /// Per thread: frequency index → entry of the share being looked up in
+    /// [`make_hermitian`] (`u32::MAX` elsewhere), reused from pair to pair.
+    static POSITIONS: std::cell::RefCell<Vec<u32>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
 thread_local! {
@@ -359,3 +479,106 @@ pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>]
 
 /// Orbits per wave in [`frame_project`].
 const PROJECTION_WAVE: usize = 32;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fit::orbit_pairs;
+    use crate::plane_group::{GroupSymbol, PlaneGroup};
+    use crate::spectrum::negative_index;
+
+    /// [`make_hermitian`] against the whole spectrum written out (the slow
+    /// obvious reference): random shares of every orbit pair scattered into
+    /// one `n1 x n2` array `F`; the defects must be `Σ |F(ξ) − conj F(−ξ)|²`
+    /// over each orbit's frequencies, and the new shares must scatter to the
+    /// Hermitian part `(F(ξ) + conj F(−ξ)) / 2`. Groups with `−I` (each orbit
+    /// its own conjugate) and without (orbits in pairs); an empty layer in
+    /// one orbit of a pair counts as zeros.
+    #[test]
+    fn hermitian_shares_match_the_whole_spectrum() {
+        let mut rng = SplitMix64(99);
+        for (symbol, n, cell) in [(GroupSymbol::P1, [8, 6], [4, 3]), (GroupSymbol::P3, [12, 12], [4, 4]), (GroupSymbol::Pmm, [8, 8], [4, 4]), (GroupSymbol::P4m, [12, 12], [4, 4])] {
+            let sym = Symmetry::new(n, cell, &PlaneGroup::standard(symbol)).unwrap();
+            let orbits = sym.orbits();
+            let d = sym.lattice().fiber_len();
+            let layers = 2;
+            let mut shares: Vec<Vec<(u64, DMatrix<Complex64>)>> = orbits
+                .iter()
+                .map(|o| {
+                    (0..layers)
+                        .map(|_| (0, DMatrix::from_fn(d, o.points.len(), |_, _| Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0)))))
+                        .collect()
+                })
+                .collect();
+            let pairs = orbit_pairs(&sym, &orbits);
+            if let Some(p) = pairs.iter().find(|p| p.len() == 2) {
+                shares[p[1]][1].1 = DMatrix::zeros(d, 0);
+            }
+            let whole = |shares: &[Vec<(u64, DMatrix<Complex64>)>], l: usize| {
+                let mut f = vec![Complex64::new(0.0, 0.0); n[0] * n[1]];
+                for (o, orbit) in orbits.iter().enumerate() {
+                    let m = &shares[o][l].1;
+                    for (j, &(_, op)) in orbit.points.iter().enumerate().filter(|_| m.ncols() > 0) {
+                        sym.gather(orbit.rep, op).scatter(m.column(j).as_slice(), &mut f);
+                    }
+                }
+                f
+            };
+            let before: Vec<Vec<Complex64>> = (0..layers).map(|l| whole(&shares, l)).collect();
+            let mut pair_defects = Vec::new();
+            for pair in &pairs {
+                let pair_orbits: Vec<&Orbit> = pair.iter().map(|&o| &orbits[o]).collect();
+                let mut taken: Vec<Vec<(u64, DMatrix<Complex64>)>> = pair.iter().map(|&o| std::mem::take(&mut shares[o])).collect();
+                let defects = make_hermitian(&sym, &pair_orbits, &mut taken.iter_mut().collect::<Vec<_>>());
+                for (k, &o) in pair.iter().enumerate() {
+                    for (l, f) in before.iter().enumerate() {
+                        let expected: f64 = orbits[o]
+                            .points
+                            .iter()
+                            .flat_map(|&(_, op)| sym.gather(orbits[o].rep, op).index)
+                            .map(|i| (f[i] - f[negative_index(i, n[0], n[1])].conj()).norm_sqr())
+                            .sum();
+                        assert!(expected > 0.1, "{symbol:?}: random shares are far from Hermitian");
+                        assert!((defects[k][l] - expected).abs() < 1e-12 * expected, "{symbol:?} orbit {o} layer {l}: {} vs {expected}", defects[k][l]);
+                    }
+                }
+                for (&o, share) in pair.iter().zip(taken) {
+                    shares[o] = share;
+                }
+                pair_defects.push(defects);
+            }
+            let mut defects = vec![0.0; layers];
+            for (pair, defect) in pairs.iter().zip(&pair_defects) {
+                for (k, _) in pair.iter().enumerate() {
+                    for l in 0..layers {
+                        defects[l] += defect[k][l];
+                    }
+                }
+            }
+            // The generator images: the real part of the inverse transform
+            // of the whole spectrum, and the norm of its imaginary part.
+            let mut spectra = GeneratorSpectra::new(n, layers);
+            for (orbit, share) in orbits.iter().zip(&shares) {
+                spectra.write(&sym, orbit, share);
+            }
+            for (l, generator) in spectra.into_generators(&defects).iter().enumerate() {
+                let mut z = before[l].clone();
+                crate::spectrum::fft2_in_place(&mut z, n[0], n[1], true);
+                let scale = 1.0 / (n[0] * n[1]) as f64;
+                let real: Vec<f64> = z.iter().map(|v| v.re * scale).collect();
+                let imaginary = z.iter().map(|v| (v.im * scale).powi(2)).sum::<f64>().sqrt();
+                let err = generator.image.pixels.iter().zip(&real).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+                assert!(err < 1e-14, "{symbol:?} generator {l}: {err}");
+                let expected = imaginary / generator.image.energy().sqrt();
+                assert!((generator.imaginary_part - expected).abs() < 1e-12 * expected, "{symbol:?} generator {l}: {} vs {expected}", generator.imaginary_part);
+            }
+            for (l, f) in before.iter().enumerate() {
+                let after = whole(&shares, l);
+                for (i, z) in after.iter().enumerate() {
+                    let hermitian = (f[i] + f[negative_index(i, n[0], n[1])].conj()) * 0.5;
+                    assert!((z - hermitian).norm() < 1e-14, "{symbol:?} layer {l} at {i}: {z} vs {hermitian}");
+                }
+            }
+        }
+    }
+}

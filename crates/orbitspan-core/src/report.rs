@@ -56,8 +56,11 @@ pub struct GeneratorInfo {
     pub captured_share: f64,
     /// `dim D_l`, the dimension of the generator's layer; 0 means it adds nothing.
     pub layer_dimension: usize,
-    /// Largest imaginary part left by the inverse transform, relative to the
-    /// generator's norm (a realness check; expect round-off, below 1e-9).
+    /// The norm of the imaginary part that the inverse transform of the
+    /// generator's whole spectrum would leave, relative to the generator's
+    /// norm (a realness check, an upper bound of the largest imaginary
+    /// value; expect round-off, below 1e-9). Computed from the spectrum by
+    /// Parseval: only half of it is transformed.
     pub imaginary_part: f64,
 }
 

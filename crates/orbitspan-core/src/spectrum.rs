@@ -225,6 +225,90 @@ pub fn ifft2_real_owned(mut data: Vec<Complex64>, n1: usize, n2: usize) -> (Imag
     (Image::new(n1, n2, pixels), max_imag)
 }
 
+/// Columns kept of a real image's spectrum, `ξ2 = 0..=n2/2`: the others
+/// are conjugates, `f̂(ξ1, ξ2) = conj f̂(−ξ1, −ξ2)`.
+pub fn half_width(n2: usize) -> usize {
+    n2 / 2 + 1
+}
+
+/// The inverse transform of a real image from its half spectrum (row-major
+/// `n1 x half_width(n2)`, the columns `ξ2 = 0..=n2/2`), consumed: about half
+/// the work and memory of [`ifft2_real`] on the whole spectrum.
+///
+/// The missing columns are taken as conjugates, and on the columns that
+/// are their own negatives (`ξ2 = 0` and, for even `n2`, `n2/2`) the
+/// Hermitian part `(f̂(ξ) + conj f̂(−ξ)) / 2` is used, so the result is the
+/// real part of the inverse transform of the conjugate-symmetric extension
+/// (what [`ifft2_real`] returns for it; the tests check exactly that).
+///
+/// Columns first: the inverse along `ξ1` of each kept column gives, per
+/// row `x1`, the 1-D half spectrum `g(ξ2)` of that real row. Then rows two
+/// at a time as one complex inverse of length `n2` of `z = g_a + i g_b`
+/// (extended by `g(n2 − ξ2) = conj g(ξ2)`): its real part is row `a`, its
+/// imaginary part row `b` (the two-real-functions trick of
+/// [`PackedPair`], backwards, within one image).
+pub fn ifft2_half_real(mut half: Vec<Complex64>, n1: usize, n2: usize) -> Image {
+    let h2 = half_width(n2);
+    assert_eq!(half.len(), n1 * h2, "a half spectrum of {n1}x{n2} has {n1}x{h2} values");
+    let self_conjugate = |c: usize| (n2 - c) % n2 == c;
+    for c in (0..h2).filter(|&c| self_conjugate(c)) {
+        for r in 0..=n1 / 2 {
+            let nr = (n1 - r) % n1;
+            let hermitian = (half[r * h2 + c] + half[nr * h2 + c].conj()) * 0.5;
+            half[r * h2 + c] = hermitian;
+            half[nr * h2 + c] = hermitian.conj();
+        }
+    }
+    let (row, col) = PLANNER.with(|planner| {
+        let mut planner = planner.borrow_mut();
+        (planner.plan_fft_inverse(n2), planner.plan_fft_inverse(n1))
+    });
+    let mut scratch = vec![Complex64::new(0.0, 0.0); row.get_inplace_scratch_len().max(col.get_inplace_scratch_len())];
+    let mut block = vec![Complex64::new(0.0, 0.0); n1 * COLUMN_BLOCK.min(h2)];
+    for c0 in (0..h2).step_by(COLUMN_BLOCK) {
+        let width = COLUMN_BLOCK.min(h2 - c0);
+        let block = &mut block[..n1 * width];
+        for r in 0..n1 {
+            for (b, &z) in half[r * h2 + c0..r * h2 + c0 + width].iter().enumerate() {
+                block[b * n1 + r] = z;
+            }
+        }
+        col.process_with_scratch(block, &mut scratch);
+        for r in 0..n1 {
+            for (b, z) in half[r * h2 + c0..r * h2 + c0 + width].iter_mut().enumerate() {
+                *z = block[b * n1 + r];
+            }
+        }
+    }
+    let scale = 1.0 / (n1 * n2) as f64;
+    let mut pixels = vec![0.0; n1 * n2];
+    let mut z = vec![Complex64::new(0.0, 0.0); n2];
+    let i = Complex64::new(0.0, 1.0);
+    for a in (0..n1).step_by(2) {
+        let ga = &half[a * h2..(a + 1) * h2];
+        let gb = (a + 1 < n1).then(|| &half[(a + 1) * h2..(a + 2) * h2]);
+        for c in 0..h2 {
+            let (mut x, mut y) = (ga[c], gb.map_or(Complex64::new(0.0, 0.0), |g| g[c]));
+            if self_conjugate(c) {
+                // A real row's value there is real; what is left is round-off.
+                (x, y) = (Complex64::new(x.re, 0.0), Complex64::new(y.re, 0.0));
+            }
+            z[c] = x + i * y;
+            if c != 0 && c < n2 - c {
+                z[n2 - c] = x.conj() + i * y.conj();
+            }
+        }
+        row.process_with_scratch(&mut z, &mut scratch);
+        for (x2, v) in z.iter().enumerate() {
+            pixels[a * n2 + x2] = v.re * scale;
+            if a + 1 < n1 {
+                pixels[(a + 1) * n2 + x2] = v.im * scale;
+            }
+        }
+    }
+    Image::new(n1, n2, pixels)
+}
+
 /// The naive `O(|T|²)` DFT, straight from the definition: the reference for tests.
 pub fn dft2_naive(image: &Image) -> Vec<Complex64> {
     let (n1, n2) = (image.height, image.width);
@@ -318,6 +402,47 @@ mod tests {
                 assert!(out.iter().all(|z| *z == Complex64::new(0.0, 0.0)));
                 assert_eq!(single.into_first(), fa, "{n1}x{n2} {origin:?}: alone");
             }
+        }
+    }
+
+    /// The columns `0..=n2/2` of a row-major `n1 x n2` spectrum.
+    fn half_of(full: &[Complex64], n1: usize, n2: usize) -> Vec<Complex64> {
+        let h2 = half_width(n2);
+        (0..n1 * h2).map(|k| full[(k / h2) * n2 + k % h2]).collect()
+    }
+
+    #[test]
+    fn half_spectrum_inverse_gives_back_the_image() {
+        for (n1, n2) in [(1, 1), (1, 2), (2, 1), (1, 6), (4, 6), (7, 5), (6, 9), (8, 8), (5, 37), (33, 20)] {
+            let img = test_image(n1, n2);
+            let back = ifft2_half_real(half_of(&fft2(&img), n1, n2), n1, n2);
+            let err = back.pixels.iter().zip(&img.pixels).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+            assert!(err < 1e-13, "{n1}x{n2}: {err}");
+        }
+    }
+
+    /// Any half spectrum, Hermitian or not on the self-conjugate columns:
+    /// the real part of [`ifft2_real`] (the slow reference) of its
+    /// conjugate-symmetric extension.
+    #[test]
+    fn half_spectrum_inverse_is_the_real_part_of_the_extension() {
+        let mut rng = crate::prng::SplitMix64(17);
+        for (n1, n2) in [(1, 1), (1, 2), (3, 2), (4, 6), (7, 5), (6, 9), (8, 8), (5, 37)] {
+            let h2 = half_width(n2);
+            let half: Vec<Complex64> = (0..n1 * h2).map(|_| Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0))).collect();
+            let full: Vec<Complex64> = (0..n1 * n2)
+                .map(|k| {
+                    let (r, c) = (k / n2, k % n2);
+                    match c < h2 {
+                        true => half[r * h2 + c],
+                        false => half[((n1 - r) % n1) * h2 + n2 - c].conj(),
+                    }
+                })
+                .collect();
+            let (reference, _) = ifft2_real(&full, n1, n2);
+            let fast = ifft2_half_real(half, n1, n2);
+            let err = fast.pixels.iter().zip(&reference.pixels).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+            assert!(err < 1e-14, "{n1}x{n2}: {err}");
         }
     }
 

@@ -20,7 +20,8 @@
 //! each as two f64). Answer:
 //! `ANSWER_MAGIC`, the orbit count (u32), then per orbit: index, `lmax`,
 //! images, `d` (u32 each), tail, `lmax` layer energies, per-image discarded
-//! energies (f64), and per layer the reference chosen (u64), the layer's
+//! energies (f64), and per layer the reference chosen (u64), the realness
+//! defect (f64, see [`crate::frame::make_hermitian`]), the layer's
 //! dimension and the number of columns (u32) and the columns (complex).
 
 use crate::error::{Error, Result};
@@ -214,8 +215,10 @@ fn read_result(r: &mut Reader, orbit: &Orbit, lmax: usize, m: usize, d: usize) -
     let image_discarded = (0..m).map(|_| r.f64()).collect::<Result<Vec<_>>>()?;
     let mut layer_dims = Vec::with_capacity(lmax);
     let mut generator = Vec::with_capacity(lmax);
+    let mut realness_defect = Vec::with_capacity(lmax);
     for _ in 0..lmax {
         let chosen = r.u64()?;
+        realness_defect.push(r.f64()?);
         let dim = r.u32()?;
         let cols = r.u32()?;
         if cols != 0 && cols != orbit.points.len() {
@@ -225,7 +228,7 @@ fn read_result(r: &mut Reader, orbit: &Orbit, lmax: usize, m: usize, d: usize) -
         layer_dims.push(dim);
         generator.push((chosen, DMatrix::from_vec(d, cols, values)));
     }
-    Ok(OrbitResult { layer_energy, tail, image_discarded, layer_dims, generator })
+    Ok(OrbitResult { layer_energy, tail, image_discarded, layer_dims, generator, realness_defect })
 }
 
 /// Solves tasks.
@@ -287,8 +290,9 @@ impl TaskSolver {
             for v in result.layer_energy.iter().chain(&result.image_discarded) {
                 out.extend_from_slice(&v.to_le_bytes());
             }
-            for (dim, (chosen, columns)) in result.layer_dims.iter().zip(&result.generator) {
+            for ((dim, (chosen, columns)), defect) in result.layer_dims.iter().zip(&result.generator).zip(&result.realness_defect) {
                 out.extend_from_slice(&chosen.to_le_bytes());
+                out.extend_from_slice(&defect.to_le_bytes());
                 put_u32(&mut out, *dim);
                 put_u32(&mut out, columns.ncols());
                 for z in columns.iter() {
