@@ -19,6 +19,7 @@ use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use crate::frame;
 use crate::isotypic::{isotypic_blocks, Monomial};
+use crate::matmul::{self, Part};
 use crate::model::Model;
 use crate::progress::Progress;
 use crate::report::{BandReport, CurvePoint, GeneratorInfo, ImageError, Report};
@@ -583,7 +584,7 @@ pub(crate) fn solve_orbit(
         let s: Vec<Complex64> = d.iter().map(|z| z.sqrt()).collect();
         let u = untwisted_gram_vectors(&primary, spectra, &s);
         let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
-        untwisted_gram = Some((u.transpose() * &u, u, s));
+        untwisted_gram = Some((matmul::mul(1.0, Part::of(&u).t(), Part::of(&u)), u, s));
         (DMatrix::zeros(0, 0), ops, None)
     } else if use_gram {
         let gathers: Vec<Gather> = (0..gcount).map(|g| fibers.gather(sym, orbit.rep, g)).collect();
@@ -696,7 +697,7 @@ pub(crate) fn solve_orbit(
                 // `Y' a = S (U a)` for real coefficients `a`: one real
                 // product; `S` is applied after orthonormalising.
                 let a = eig.untwisted.as_ref().expect("real eigenvectors");
-                let z = u * DMatrix::from_fn(a.nrows(), es.len(), |row, c| a[(row, es[c])]);
+                let z = matmul::mul(1.0, Part::of(u), Part::of(&DMatrix::from_fn(a.nrows(), es.len(), |row, c| a[(row, es[c])])));
                 for col in z.column_iter() {
                     let norm = col.norm();
                     if norm > 0.0 {
@@ -941,10 +942,10 @@ impl LayerScalar for f64 {
         (e.transpose(), e)
     }
     fn adjoint_times(e: &Self::Prepared, v: &DMatrix<f64>) -> DMatrix<f64> {
-        &e.0 * v
+        matmul::mul(1.0, Part::of(&e.0), Part::of(v))
     }
     fn times(e: &Self::Prepared, c: &DMatrix<f64>) -> DMatrix<f64> {
-        &e.1 * c
+        matmul::mul(1.0, Part::of(&e.1), Part::of(c))
     }
 }
 
@@ -1028,10 +1029,9 @@ fn per_image_discarded_untwisted(gathers: &[Gather], spectra: &[Vec<Complex64>],
     let phases = untwisted_phases(gathers, s);
     let pairs = gather_image_pairs(gathers.len(), spectra.len());
     let basis = discard.basis();
-    let basis_t = basis.transpose();
     for chunk in pairs.chunks(POOL_BLOCK) {
         let w = untwisted_block(gathers, &phases, spectra, chunk);
-        let projected = (basis.ncols() > 0).then(|| &basis_t * &w);
+        let projected = (basis.ncols() > 0).then(|| matmul::mul(1.0, Part::of(basis).t(), Part::of(&w)));
         for (c, &(_, i)) in chunk.iter().enumerate() {
             let (re, im) = (w.column(2 * c), w.column(2 * c + 1));
             let inside = projected.as_ref().map_or(0.0, |z| z.column(2 * c).norm_squared() + z.column(2 * c + 1).norm_squared());
@@ -1068,10 +1068,9 @@ pub(crate) fn pooled_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>]) 
                 b[(k, c)] = v.im;
             }
         }
-        let (at, bt) = (a.transpose(), b.transpose());
-        re.gemm(1.0, &a, &at, 1.0);
-        re.gemm(1.0, &b, &bt, 1.0);
-        cross.gemm(1.0, &b, &at, 1.0);
+        matmul::into(&mut re, (0, 0), true, 1.0, Part::of(&a), Part::of(&a).t());
+        matmul::into(&mut re, (0, 0), true, 1.0, Part::of(&b), Part::of(&b).t());
+        matmul::into(&mut cross, (0, 0), true, 1.0, Part::of(&b), Part::of(&a).t());
     }
     DMatrix::from_fn(d, d, |r, c| Complex64::new(re[(r, c)], cross[(r, c)] - cross[(c, r)]))
 }
@@ -1094,11 +1093,11 @@ pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>
     let h = d / 2;
     for chunk in pairs.chunks(POOL_BLOCK) {
         let w = untwisted_block(gathers, &phases, spectra, chunk);
-        let wt = w.transpose();
+        let (top, bottom) = (Part::of(&w).rows(0..h), Part::of(&w).rows(h..d));
         // Lower block triangle of 2 W Wᵀ: [0,0], [1,0], [1,1].
-        out.view_mut((0, 0), (h, h)).gemm(2.0, &w.rows(0, h), &wt.columns(0, h), 1.0);
-        out.view_mut((h, 0), (d - h, h)).gemm(2.0, &w.rows(h, d - h), &wt.columns(0, h), 1.0);
-        out.view_mut((h, h), (d - h, d - h)).gemm(2.0, &w.rows(h, d - h), &wt.columns(h, d - h), 1.0);
+        matmul::into(&mut out, (0, 0), true, 2.0, top.clone(), top.clone().t());
+        matmul::into(&mut out, (h, 0), true, 2.0, bottom.clone(), top.t());
+        matmul::into(&mut out, (h, h), true, 2.0, bottom.clone(), bottom.t());
     }
     for a in 0..h {
         for b in h..d {
@@ -1155,10 +1154,9 @@ fn untwisted_block(gathers: &[Gather], phases: &[Vec<Complex64>], spectra: &[Vec
 
 /// The Gram matrix `Yᴴ Y = (AᵀA + BᵀB) + i (AᵀB − (AᵀB)ᵀ)` of `Y = A + iB`, from `(A, B)`.
 pub(crate) fn gram(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<Complex64> {
-    let (at, bt) = (a.transpose(), b.transpose());
-    let mut re = &at * a;
-    re.gemm(1.0, &bt, b, 1.0);
-    let cross = &at * b;
+    let mut re = matmul::mul(1.0, Part::of(a).t(), Part::of(a));
+    matmul::into(&mut re, (0, 0), true, 1.0, Part::of(b).t(), Part::of(b));
+    let cross = matmul::mul(1.0, Part::of(a).t(), Part::of(b));
     let n = a.ncols();
     DMatrix::from_fn(n, n, |r, c| Complex64::new(re[(r, c)], cross[(r, c)] - cross[(c, r)]))
 }
@@ -1179,21 +1177,20 @@ pub(crate) fn product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix
 /// [`product`] with the left factor already split into `(A, B)`.
 pub(crate) fn product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
     let (c, d) = split(y);
-    let mut re = a * &c;
-    re.gemm(-1.0, b, &d, 1.0);
-    let mut im = a * &d;
-    im.gemm(1.0, b, &c, 1.0);
+    let mut re = matmul::mul(1.0, Part::of(a), Part::of(&c));
+    matmul::into(&mut re, (0, 0), true, -1.0, Part::of(b), Part::of(&d));
+    let mut im = matmul::mul(1.0, Part::of(a), Part::of(&d));
+    matmul::into(&mut im, (0, 0), true, 1.0, Part::of(b), Part::of(&c));
     re.zip_map(&im, Complex64::new)
 }
 
 /// [`adjoint_product`] with the left factor already split into `(A, B)`.
 pub(crate) fn adjoint_product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
     let (c, d) = split(y);
-    let (at, bt) = (a.transpose(), b.transpose());
-    let mut re = &at * &c;
-    re.gemm(1.0, &bt, &d, 1.0);
-    let mut im = &at * &d;
-    im.gemm(-1.0, &bt, &c, 1.0);
+    let mut re = matmul::mul(1.0, Part::of(a).t(), Part::of(&c));
+    matmul::into(&mut re, (0, 0), true, 1.0, Part::of(b).t(), Part::of(&d));
+    let mut im = matmul::mul(1.0, Part::of(a).t(), Part::of(&d));
+    matmul::into(&mut im, (0, 0), true, -1.0, Part::of(b).t(), Part::of(&c));
     re.zip_map(&im, Complex64::new)
 }
 

@@ -14,6 +14,7 @@ pub mod lattice;
 pub mod spectrum;
 pub mod isotypic;
 pub(crate) mod eigen;
+pub(crate) mod matmul;
 pub mod fiber;
 pub mod band;
 pub mod fit;
