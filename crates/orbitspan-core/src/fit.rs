@@ -108,7 +108,10 @@ pub fn fit(stack: &Stack, settings: &FitSettings, progress: &mut dyn Progress) -
 /// pair's result does not depend on the others or on the thread count. The
 /// same pairs can run in other processes through [`crate::tasks`].
 pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, progress: &mut dyn Progress) -> Result<Fit> {
-    let prepared = Prepared::new(stack, settings, path, progress)?;
+    let mut prepared = Prepared::new(stack, settings, path, progress)?;
+    // Each pair's fibers are dropped once the pair is solved, while the
+    // generator shares grow (see `frame::GeneratorSpectra`).
+    let kept = prepared.fibers.take_pairs();
     let pairs = &prepared.pairs;
     let references = frame::References::new(prepared.sym.lattice().torus());
     let mut collected = Collected::new(&prepared);
@@ -118,7 +121,8 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
         pairs.len(),
         |k| {
             let (sym, orbits) = (&prepared.sym, &prepared.orbits);
-            solve_kept_pair(sym, orbits, &pairs[k], prepared.fibers.pair(k), prepared.images, prepared.lmax, path, &references)
+            let fibers = std::mem::take(&mut *kept[k].lock().expect("pair fibers"));
+            solve_kept_pair(sym, orbits, &pairs[k], &fibers, prepared.images, prepared.lmax, path, &references)
         },
         |_, pair| {
             for (o, result) in pair? {
@@ -132,8 +136,9 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
 }
 
 /// The orbit results as they arrive, in any order. Each orbit's share of
-/// the generators goes into the generator spectra at once, so the
-/// per-orbit matrices are not held beside them.
+/// the generators is kept at its primary points only
+/// ([`frame::GeneratorSpectra`]), so the per-orbit matrices are not held
+/// whole.
 pub(crate) struct Collected {
     results: Vec<Option<OrbitResult>>,
     generators: frame::GeneratorSpectra,
@@ -143,14 +148,14 @@ impl Collected {
     pub fn new(prepared: &Prepared) -> Collected {
         Collected {
             results: (0..prepared.orbits.len()).map(|_| None).collect(),
-            generators: frame::GeneratorSpectra::new(prepared.sym.lattice().torus(), prepared.lmax),
+            generators: frame::GeneratorSpectra::new(prepared.sym.lattice().torus(), prepared.lmax, prepared.orbits.len()),
         }
     }
 
     /// Stores orbit `o`'s result (its generator share written out).
     pub fn absorb(&mut self, prepared: &Prepared, o: usize, mut result: OrbitResult) {
         let share = std::mem::take(&mut result.generator);
-        self.generators.write(&prepared.sym, &prepared.orbits[o], &share);
+        self.generators.write(&prepared.sym, o, &prepared.orbits[o], &share);
         self.results[o] = Some(result);
     }
 
@@ -306,16 +311,14 @@ impl Prepared {
         }
         check(progress, "building generators", 0.0)?;
         let defects: Vec<f64> = (0..lmax).map(|l| results.iter().map(|s| s.realness_defect[l]).sum()).collect();
-        let generators = generators.into_generators(&defects);
+        let generators = generators.into_generators(&self.sym, &self.orbits, &defects, self.settings.origin);
         check(progress, "building generators", 1.0)?;
         let layer_dims: Vec<usize> = (0..lmax)
             .map(|l| self.orbits.iter().zip(&results).map(|(o, s)| o.points.len() * s.layer_dims[l]).sum())
             .collect();
-        let generator_images: Vec<Image> = generators
-            .iter()
-            .map(|g| from_group_frame(&g.image, self.settings.origin))
-            .collect();
-        let model = Model::new(self.settings.clone(), h, w, generator_images)?;
+        let norms_squared: Vec<f64> = generators.iter().map(|g| g.image.energy()).collect();
+        let imaginary_parts: Vec<f64> = generators.iter().map(|g| g.imaginary_part).collect();
+        let model = Model::new(self.settings.clone(), h, w, generators.into_iter().map(|g| g.image).collect())?;
         // Per-image errors ||f_i − P_V f_i||² from the orbit results (the
         // model's frame projection, `Model::evaluate`, is the slow reference).
         let images: Vec<ImageError> = self
@@ -335,11 +338,11 @@ impl Prepared {
             let captured = (before - curve[l].error).max(0.0);
             infos.push(GeneratorInfo {
                 index: l + 1,
-                norm_squared: generators[l].image.energy(),
+                norm_squared: norms_squared[l],
                 captured_energy: captured,
                 captured_share: ratio(captured, total_energy),
                 layer_dimension: layer_dims[l],
-                imaginary_part: generators[l].imaginary_part,
+                imaginary_part: imaginary_parts[l],
             });
         }
         let band_report = self.band.as_ref().map(|b| BandReport {

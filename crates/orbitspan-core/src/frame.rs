@@ -24,7 +24,7 @@
 use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
-use crate::fit::{adjoint_product, product, OrbitSolution};
+use crate::fit::{adjoint_product, from_group_frame, product, OrbitSolution};
 use crate::prng::SplitMix64;
 use crate::spectrum::{half_width, ifft2_half_real, negative_index};
 use crate::stack::Image;
@@ -130,70 +130,99 @@ impl References {
     }
 }
 
-/// The spectra of the Parseval generators `φ_1..φ_L` in the group frame
-/// (origin at (0,0)), written orbit by orbit from each orbit's share (see
-/// [`orbit_generators`]): each orbit writes only its own fibers, so the
-/// result does not depend on where or in which order the shares were made.
-/// The generators are real, so only half of each spectrum is kept (the
-/// columns `ξ2 = 0..=n2/2`, see [`half_width`]); the conjugate symmetry that
-/// this takes for granted is measured per orbit ([`make_hermitian`]).
+/// One layer's shares, per orbit (see [`GeneratorSpectra`]).
+type LayerShares = Vec<Option<DMatrix<Complex64>>>;
+
+/// The Parseval generators `φ_1..φ_L` as they arrive, orbit by orbit, made
+/// into images at the end.
+///
+/// Each orbit's share (see [`orbit_generators`]) is kept at the orbit's
+/// primary points only (a fiber `f` with `f ≤ −f`, as in
+/// [`crate::pair_fibers`]): after [`make_hermitian`] the values at the
+/// other points are the conjugates of these, so the kept shares of all
+/// orbits hold about half of each generator's spectrum, while the images'
+/// fibers of the pairs already solved have been dropped. At the end each
+/// generator's half spectrum (the columns `ξ2 = 0..=n2/2`, see
+/// [`half_width`]) is written from its layer of every share, that layer
+/// of the shares dropped, and the half spectrum transformed: one
+/// generator's spectrum at a time per thread, never all of them. Each orbit
+/// writes only its own frequencies and their negatives, in orbit order,
+/// so the result does not depend on where or in which order the shares
+/// were made.
 pub(crate) struct GeneratorSpectra {
     torus: [usize; 2],
     lmax: usize,
-    /// Per layer, the half spectrum, made on the first write.
-    phis: Vec<Vec<Complex64>>,
+    /// Per layer, per orbit: the share's columns at the orbit's primary
+    /// points (`None` for an empty layer or an orbit not yet written).
+    layers: Vec<LayerShares>,
+    /// Per orbit, its primary points (indices into its points).
+    primary: Vec<Vec<usize>>,
 }
 
 impl GeneratorSpectra {
-    pub fn new(torus: [usize; 2], lmax: usize) -> GeneratorSpectra {
-        GeneratorSpectra { torus, lmax, phis: Vec::new() }
+    pub fn new(torus: [usize; 2], lmax: usize, orbits: usize) -> GeneratorSpectra {
+        GeneratorSpectra { torus, lmax, layers: vec![vec![None; orbits]; lmax], primary: vec![Vec::new(); orbits] }
     }
 
-    /// Writes one orbit's share: per layer, `φ_l(ξ_j) = T_j` applied to
-    /// column `j`, at the frequencies in the kept half.
-    pub fn write(&mut self, sym: &Symmetry, orbit: &Orbit, share: &[(u64, DMatrix<Complex64>)]) {
-        let [n1, n2] = self.torus;
-        let h2 = half_width(n2);
-        if self.phis.is_empty() {
-            self.phis = vec![vec![Complex64::new(0.0, 0.0); n1 * h2]; self.lmax];
+    /// Keeps orbit `o`'s share (made conjugate-symmetric by
+    /// [`make_hermitian`]) at its primary points.
+    pub fn write(&mut self, sym: &Symmetry, o: usize, orbit: &Orbit, share: &[(u64, DMatrix<Complex64>)]) {
+        let l = sym.lattice();
+        let primary: Vec<usize> = (0..orbit.points.len())
+            .filter(|&j| {
+                let f = orbit.points[j].0;
+                f <= l.fiber_of(l.neg(l.fiber_rep(f)))
+            })
+            .collect();
+        for (layer, (_, fibers)) in self.layers.iter_mut().zip(share) {
+            layer[o] = (fibers.ncols() > 0).then(|| fibers.select_columns(&primary));
         }
-        let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
-        for (phi, (_, fibers)) in self.phis.iter_mut().zip(share) {
-            for (transport, v) in transports.iter().zip(fibers.column_iter()) {
-                for ((&i, &p), &x) in transport.index.iter().zip(&transport.phase).zip(v.iter()) {
-                    let (r, c) = (i / n2, i % n2);
-                    if c < h2 {
-                        phi[r * h2 + c] = p.conj() * x;
-                    }
-                }
-            }
-        }
+        self.primary[o] = primary;
     }
 
-    /// The generator images, transformed on threads natively, each spectrum
-    /// dropped once transformed. `defects[l]` is
-    /// `Σ_ξ |φ̂_l(ξ) − conj φ̂_l(−ξ)|²` over every frequency (the orbits'
-    /// [`make_hermitian`]s): by Parseval the imaginary part that the
+    /// The generator images, transformed on threads natively. `defects[l]`
+    /// is `Σ_ξ |φ̂_l(ξ) − conj φ̂_l(−ξ)|²` over every frequency (the
+    /// orbits' [`make_hermitian`]s): by Parseval the imaginary part that the
     /// inverse transform of the whole spectrum would have left has norm
     /// `(defect / 4|T|)^{1/2}`, reported relative to `||φ_l||` (an upper
     /// bound of its largest value). One transform per generator (not two
     /// generators per complex transform): a generator's values must not
     /// depend on which other generators exist, so that the generators for
     /// `L` are bit-identical to the first `L` for `L + 1`.
-    pub fn into_generators(self, defects: &[f64]) -> Vec<Generator> {
+    ///
+    /// Each image is moved out of the group frame (so that pixel `origin`
+    /// of the group frame lands where it belongs) by the worker that made
+    /// it, so no second set of generator images is held.
+    pub fn into_generators(self, sym: &Symmetry, orbits: &[Orbit], defects: &[f64], origin: [usize; 2]) -> Vec<Generator> {
         let [n1, n2] = self.torus;
-        let mut phis = self.phis;
-        if phis.is_empty() {
-            phis = vec![vec![Complex64::new(0.0, 0.0); n1 * half_width(n2)]; self.lmax];
-        }
-        let count = phis.len();
-        let slots: Vec<Mutex<Option<Vec<Complex64>>>> = phis.into_iter().map(|phi| Mutex::new(Some(phi))).collect();
+        let h2 = half_width(n2);
+        let count = self.lmax;
+        let primary = &self.primary;
+        let slots: Vec<Mutex<Option<LayerShares>>> = self.layers.into_iter().map(|layer| Mutex::new(Some(layer))).collect();
         let mut out: Vec<Option<Generator>> = (0..count).map(|_| None).collect();
         let Ok(()) = for_each_parallel(
             count,
             |l| {
-                let phi = slots[l].lock().expect("generator spectrum").take().expect("each generator spectrum is taken once");
-                let image = ifft2_half_real(phi, n1, n2);
+                let shares = slots[l].lock().expect("generator layer").take().expect("each generator layer is taken once");
+                let mut half = vec![Complex64::new(0.0, 0.0); n1 * h2];
+                let mut put = |i: usize, v: Complex64| {
+                    let (r, c) = (i / n2, i % n2);
+                    if c < h2 {
+                        half[r * h2 + c] = v;
+                    }
+                };
+                for ((orbit, share), points) in orbits.iter().zip(shares).zip(primary) {
+                    let Some(share) = share else { continue };
+                    for (column, &j) in share.column_iter().zip(points) {
+                        let t = sym.gather(orbit.rep, orbit.points[j].1);
+                        for ((&i, &p), &x) in t.index.iter().zip(&t.phase).zip(column.iter()) {
+                            let v = p.conj() * x;
+                            put(i, v);
+                            put(negative_index(i, n1, n2), v.conj());
+                        }
+                    }
+                }
+                let image = from_group_frame(&ifft2_half_real(half, n1, n2), origin);
                 let norm = image.energy().sqrt();
                 let imaginary = (defects[l].max(0.0) / (4.0 * (n1 * n2) as f64)).sqrt();
                 Generator { imaginary_part: if norm > 0.0 { imaginary / norm } else { 0.0 }, image }
@@ -557,11 +586,11 @@ mod tests {
             }
             // The generator images: the real part of the inverse transform
             // of the whole spectrum, and the norm of its imaginary part.
-            let mut spectra = GeneratorSpectra::new(n, layers);
-            for (orbit, share) in orbits.iter().zip(&shares) {
-                spectra.write(&sym, orbit, share);
+            let mut spectra = GeneratorSpectra::new(n, layers, orbits.len());
+            for (o, (orbit, share)) in orbits.iter().zip(&shares).enumerate() {
+                spectra.write(&sym, o, orbit, share);
             }
-            for (l, generator) in spectra.into_generators(&defects).iter().enumerate() {
+            for (l, generator) in spectra.into_generators(&sym, &orbits, &defects, [0, 0]).iter().enumerate() {
                 let mut z = before[l].clone();
                 crate::spectrum::fft2_in_place(&mut z, n[0], n[1], true);
                 let scale = 1.0 / (n[0] * n[1]) as f64;

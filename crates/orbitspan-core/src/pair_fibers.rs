@@ -18,6 +18,7 @@ use crate::error::{Error, Result};
 use crate::fiber::{Orbit, Symmetry};
 use crate::spectrum::negative_index;
 use num_complex::Complex64;
+use std::sync::Mutex;
 
 /// The fibers of a pair's points, in slot order (first orbit's points,
 /// then the conjugate's).
@@ -105,6 +106,12 @@ impl PairFibers {
     /// Ends the filling (drops the index lists).
     pub fn finish_filling(&mut self) {
         self.indices = Vec::new();
+    }
+
+    /// Every pair's kept values, moved out (this is left empty), each to
+    /// be taken by the thread that solves the pair and dropped once solved.
+    pub fn take_pairs(&mut self) -> Vec<Mutex<Vec<Complex64>>> {
+        std::mem::take(&mut self.data).into_iter().map(Mutex::new).collect()
     }
 
     /// Pair `p`'s kept values, image-major.
