@@ -114,6 +114,11 @@ impl PairFibers {
         std::mem::take(&mut self.data).into_iter().map(Mutex::new).collect()
     }
 
+    /// Drops pair `p`'s kept values (once they are no longer needed).
+    pub fn drop_pair(&mut self, p: usize) {
+        self.data[p] = Vec::new();
+    }
+
     /// Pair `p`'s kept values, image-major.
     pub fn pair(&self, p: usize) -> &[Complex64] {
         &self.data[p]

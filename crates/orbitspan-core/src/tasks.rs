@@ -82,6 +82,9 @@ pub struct FitTasks {
     prepared: Prepared,
     /// Per task, its range of the prepared fit's pairs.
     tasks: Vec<Range<usize>>,
+    /// Per task, whether its bytes were handed out (its pairs' fibers are
+    /// then dropped: each task is handed out once).
+    given: Vec<bool>,
     collected: Collected,
 }
 
@@ -123,7 +126,8 @@ impl FitTasks {
             tasks.push(start..pairs.len());
         }
         let collected = Collected::new(&prepared);
-        Ok(FitTasks { prepared, tasks, collected })
+        let given = vec![false; tasks.len()];
+        Ok(FitTasks { prepared, tasks, given, collected })
     }
 
     /// The number of tasks.
@@ -136,12 +140,18 @@ impl FitTasks {
         self.tasks.is_empty()
     }
 
-    /// The bytes of task `k` (see the module documentation).
-    pub fn task(&self, k: usize) -> Result<Vec<u8>> {
+    /// The bytes of task `k` (see the module documentation). Each task is
+    /// handed out once: its pairs' fibers are dropped with it, so the
+    /// fibers held shrink as the tasks go out.
+    pub fn task(&mut self, k: usize) -> Result<Vec<u8>> {
         let range = self
             .tasks
             .get(k)
+            .cloned()
             .ok_or_else(|| Error::Internal(format!("no fit task {k}: there are {}", self.tasks.len())))?;
+        if self.given[k] {
+            return Err(Error::Internal(format!("fit task {k} was handed out already (each task is handed out once)")));
+        }
         let p = &self.prepared;
         let header = Header {
             height: p.height,
@@ -163,6 +173,10 @@ impl FitTasks {
                 out.extend_from_slice(&z.im.to_le_bytes());
             }
         }
+        for k in range {
+            self.prepared.fibers.drop_pair(k);
+        }
+        self.given[k] = true;
         Ok(out)
     }
 
@@ -423,6 +437,7 @@ mod tests {
         let s = settings(GroupSymbol::P4m, [4, 4], 2);
         let mut tasks = FitTasks::new(&stack, &s, &mut Silent).unwrap();
         let task = tasks.task(0).unwrap();
+        assert!(tasks.task(0).unwrap_err().to_string().contains("handed out already"));
         let mut solver = TaskSolver::new();
         let short = solver.solve(&task[..task.len() - 5]).unwrap_err().to_string();
         assert!(short.contains("cut short"), "{short}");
@@ -434,7 +449,7 @@ mod tests {
         assert!(tasks.accept(&answer[..answer.len() - 1]).unwrap_err().to_string().contains("cut short"));
         assert!(tasks.task(tasks.len()).is_err());
         // Answers for another fit's shape are refused, not mixed in.
-        let other = FitTasks::new(&stack, &settings(GroupSymbol::P4m, [4, 4], 3), &mut Silent).unwrap();
+        let mut other = FitTasks::new(&stack, &settings(GroupSymbol::P4m, [4, 4], 3), &mut Silent).unwrap();
         let foreign = solver.solve(&other.task(0).unwrap()).unwrap();
         assert!(tasks.accept(&foreign).unwrap_err().to_string().contains("3 generators"));
         // A fit with an orbit unanswered does not finish.

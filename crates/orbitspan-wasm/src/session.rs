@@ -422,9 +422,10 @@ impl Session {
         Ok(count)
     }
 
-    /// The bytes of task `index` of the fit begun by `fitBegin`.
+    /// The bytes of task `index` of the fit begun by `fitBegin`; each task
+    /// is handed out once (its part of the transformed images is dropped).
     #[wasm_bindgen(js_name = fitTask)]
-    pub fn fit_task(&self, index: usize) -> JsResult<Uint8Array> {
+    pub fn fit_task(&mut self, index: usize) -> JsResult<Uint8Array> {
         let bytes = self.pending_fit()?.tasks.task(index).map_err(error)?;
         Ok(Uint8Array::from(bytes.as_slice()))
     }
@@ -474,8 +475,8 @@ impl Session {
         Ok((page, settings, measured))
     }
 
-    fn pending_fit(&self) -> JsResult<&PendingFit> {
-        self.pending.as_ref().ok_or_else(|| error(Error::Internal("no fit has begun".into())))
+    fn pending_fit(&mut self) -> JsResult<&mut PendingFit> {
+        self.pending.as_mut().ok_or_else(|| error(Error::Internal("no fit has begun".into())))
     }
 
     /// Keeps a finished fit as the session's report and model; returns the report.
