@@ -152,7 +152,8 @@ impl Collected {
         }
     }
 
-    /// Stores orbit `o`'s result (its generator share written out).
+    /// Stores orbit `o`'s result (its generator share kept at its primary
+    /// points by the generator spectra).
     pub fn absorb(&mut self, prepared: &Prepared, o: usize, mut result: OrbitResult) {
         let share = std::mem::take(&mut result.generator);
         self.generators.write(&prepared.sym, o, &prepared.orbits[o], &share);
@@ -406,8 +407,8 @@ pub(crate) struct OrbitResult {
     /// Per layer, its dimension at `ξ0` (columns of its basis).
     pub layer_dims: Vec<usize>,
     /// Per layer, the reference image chosen and `T_jᴴ φ_l(ξ_j)` for every
-    /// point `j` (columns; none for an empty layer). Emptied once written
-    /// into the generator spectra ([`Collected::absorb`]).
+    /// point `j` (columns; none for an empty layer). Emptied once the
+    /// generator spectra keep it ([`Collected::absorb`]).
     pub generator: Vec<(u64, DMatrix<Complex64>)>,
     /// Per layer, this orbit's part of the realness defect (see
     /// [`frame::make_hermitian`]), measured before its share was made
@@ -940,15 +941,16 @@ trait LayerScalar: nalgebra::ComplexField<RealField = f64> + Copy {
 }
 
 impl LayerScalar for f64 {
-    type Prepared = (DMatrix<f64>, DMatrix<f64>);
+    /// As it is: [`matmul`] reads the transpose in place.
+    type Prepared = DMatrix<f64>;
     fn prepare(e: DMatrix<f64>) -> Self::Prepared {
-        (e.transpose(), e)
+        e
     }
     fn adjoint_times(e: &Self::Prepared, v: &DMatrix<f64>) -> DMatrix<f64> {
-        matmul::mul(1.0, Part::of(&e.0), Part::of(v))
+        matmul::mul(1.0, Part::of(e).t(), Part::of(v))
     }
     fn times(e: &Self::Prepared, c: &DMatrix<f64>) -> DMatrix<f64> {
-        matmul::mul(1.0, Part::of(&e.1), Part::of(c))
+        matmul::mul(1.0, Part::of(e), Part::of(c))
     }
 }
 

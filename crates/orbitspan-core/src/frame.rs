@@ -25,6 +25,7 @@ use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use crate::fit::{adjoint_product, from_group_frame, product, OrbitSolution};
+use crate::pair_fibers;
 use crate::prng::SplitMix64;
 use crate::spectrum::{half_width, ifft2_half_real, negative_index};
 use crate::stack::Image;
@@ -167,13 +168,8 @@ impl GeneratorSpectra {
     /// Keeps orbit `o`'s share (made conjugate-symmetric by
     /// [`make_hermitian`]) at its primary points.
     pub fn write(&mut self, sym: &Symmetry, o: usize, orbit: &Orbit, share: &[(u64, DMatrix<Complex64>)]) {
-        let l = sym.lattice();
-        let primary: Vec<usize> = (0..orbit.points.len())
-            .filter(|&j| {
-                let f = orbit.points[j].0;
-                f <= l.fiber_of(l.neg(l.fiber_rep(f)))
-            })
-            .collect();
+        let fibers: Vec<usize> = orbit.points.iter().map(|&(f, _)| f).collect();
+        let primary: Vec<usize> = pair_fibers::primary(sym, &fibers).iter().enumerate().filter(|(_, &p)| p).map(|(j, _)| j).collect();
         for (layer, (_, fibers)) in self.layers.iter_mut().zip(share) {
             layer[o] = (fibers.ncols() > 0).then(|| fibers.select_columns(&primary));
         }

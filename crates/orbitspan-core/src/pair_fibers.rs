@@ -33,7 +33,7 @@ fn mirror(sym: &Symmetry, fiber: usize) -> usize {
 }
 
 /// Per point of the pair (slot order), whether it is primary.
-fn primary(sym: &Symmetry, points: &[usize]) -> Vec<bool> {
+pub(crate) fn primary(sym: &Symmetry, points: &[usize]) -> Vec<bool> {
     points.iter().map(|&f| f <= mirror(sym, f)).collect()
 }
 
