@@ -588,7 +588,11 @@ pub(crate) fn solve_orbit(
         let s: Vec<Complex64> = d.iter().map(|z| z.sqrt()).collect();
         let u = untwisted_gram_vectors(&primary, spectra, &s);
         let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
-        untwisted_gram = Some((matmul::mul(1.0, Part::of(&u).t(), Part::of(&u)), u, s));
+        // `UᵀU` by its lower block triangle (three quarters of the products).
+        let mut gram = DMatrix::zeros(u.ncols(), u.ncols());
+        matmul::add_lower_outer(&mut gram, 1.0, Part::of(&u).t());
+        matmul::mirror_lower(&mut gram);
+        untwisted_gram = Some((gram, u, s));
         (DMatrix::zeros(0, 0), ops, None)
     } else if use_gram {
         let gathers: Vec<Gather> = (0..gcount).map(|g| fibers.gather(sym, orbit.rep, g)).collect();
@@ -1095,20 +1099,11 @@ pub(crate) fn untwisted_covariance(gathers: &[Gather], spectra: &[Vec<Complex64>
     let phases = untwisted_phases(gathers, s);
     let pairs = gather_image_pairs(gathers.len(), spectra.len());
     let mut out = DMatrix::<f64>::zeros(d, d);
-    let h = d / 2;
     for chunk in pairs.chunks(POOL_BLOCK) {
         let w = untwisted_block(gathers, &phases, spectra, chunk);
-        let (top, bottom) = (Part::of(&w).rows(0..h), Part::of(&w).rows(h..d));
-        // Lower block triangle of 2 W Wᵀ: [0,0], [1,0], [1,1].
-        matmul::into(&mut out, (0, 0), true, 2.0, top.clone(), top.clone().t());
-        matmul::into(&mut out, (h, 0), true, 2.0, bottom.clone(), top.t());
-        matmul::into(&mut out, (h, h), true, 2.0, bottom.clone(), bottom.t());
+        matmul::add_lower_outer(&mut out, 2.0, Part::of(&w));
     }
-    for a in 0..h {
-        for b in h..d {
-            out[(a, b)] = out[(b, a)];
-        }
-    }
+    matmul::mirror_lower(&mut out);
     out
 }
 

@@ -47,6 +47,16 @@ impl<'a> Part<'a> {
         self.rows = self.rows.start + rows.start..self.rows.start + rows.end;
         self
     }
+    /// Rows `range` of `op(M[rows, cols])` (columns of the block when it
+    /// is transposed).
+    pub fn op_rows(mut self, range: Range<usize>) -> Part<'a> {
+        if !self.transposed {
+            return self.rows(range);
+        }
+        assert!(range.end <= self.cols.len(), "rows {range:?} of a transposed block of {}", self.cols.len());
+        self.cols = self.cols.start + range.start..self.cols.start + range.end;
+        self
+    }
     /// The transpose.
     pub fn t(mut self) -> Part<'a> {
         self.transposed = !self.transposed;
@@ -88,6 +98,32 @@ pub(crate) fn mul(alpha: f64, a: Part, b: Part) -> DMatrix<f64> {
     let mut c = DMatrix::zeros(a.shape().0, b.shape().1);
     into(&mut c, (0, 0), false, alpha, a, b);
     c
+}
+
+/// `c += alpha a aᵀ` on and below the diagonal blocks only: with the rows
+/// of `a` in two halves `[a0; a1]`, the blocks `a0 a0ᵀ`, `a1 a0ᵀ` and
+/// `a1 a1ᵀ`, three quarters of the products of the whole `a aᵀ`. The block
+/// above (rows `..n/2`, columns `n/2..`) is left as it is; [`mirror_lower`]
+/// fills it.
+pub(crate) fn add_lower_outer(c: &mut DMatrix<f64>, alpha: f64, a: Part) {
+    let n = a.shape().0;
+    let h = n / 2;
+    let (top, bottom) = (a.clone().op_rows(0..h), a.op_rows(h..n));
+    into(c, (0, 0), true, alpha, top.clone(), top.clone().t());
+    into(c, (h, 0), true, alpha, bottom.clone(), top.t());
+    into(c, (h, h), true, alpha, bottom.clone(), bottom.t());
+}
+
+/// Copies the block below the diagonal blocks of [`add_lower_outer`]
+/// (rows `n/2..`, columns `..n/2`) to its mirror above, so that a matrix
+/// made there is whole and symmetric.
+pub(crate) fn mirror_lower(c: &mut DMatrix<f64>) {
+    let n = c.nrows();
+    for a in 0..n / 2 {
+        for b in n / 2..n {
+            c[(a, b)] = c[(b, a)];
+        }
+    }
 }
 
 /// [`into`] with a chosen library.
@@ -148,6 +184,27 @@ mod tests {
 
     fn random(rng: &mut SplitMix64, r: usize, c: usize) -> DMatrix<f64> {
         DMatrix::from_fn(r, c, |_, _| rng.between(-1.0, 1.0))
+    }
+
+    /// `a aᵀ` by blocks (then mirrored) against the whole product, for
+    /// `a` as it is and transposed, odd and even sizes, added to what was there.
+    #[test]
+    fn lower_outer_products_mirrored_are_the_whole_product() {
+        let mut rng = SplitMix64(8);
+        for (n, k) in [(1, 3), (2, 1), (5, 4), (8, 3), (33, 17)] {
+            for transposed in [false, true] {
+                let src = if transposed { random(&mut rng, k, n) } else { random(&mut rng, n, k) };
+                let a = if transposed { Part::of(&src).t() } else { Part::of(&src) };
+                let start = random(&mut rng, n, n);
+                let start = &start + start.transpose();
+                let mut blocks = start.clone();
+                add_lower_outer(&mut blocks, 1.5, a.clone());
+                mirror_lower(&mut blocks);
+                let mut whole = start.clone();
+                into(&mut whole, (0, 0), true, 1.5, a.clone(), a.t());
+                assert!((&blocks - &whole).amax() < 1e-12, "{n}x{k} transposed {transposed}");
+            }
+        }
     }
 
     /// Both libraries against the triple loop: whole matrices and row
