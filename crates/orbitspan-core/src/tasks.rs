@@ -21,7 +21,7 @@
 //! `ANSWER_MAGIC`, the orbit count (u32), then per orbit: index, `lmax`,
 //! images, `d` (u32 each), tail, `lmax` layer energies, per-image discarded
 //! energies (f64), and per layer the reference chosen (u64), the realness
-//! defect (f64, see [`crate::frame::make_hermitian`]), the layer's
+//! defect (f64, see `frame::make_hermitian`), the layer's
 //! dimension and the number of columns (u32) and the columns (complex).
 
 use crate::error::{Error, Result};
