@@ -148,7 +148,7 @@ impl Collected {
     pub fn new(prepared: &Prepared) -> Collected {
         Collected {
             results: (0..prepared.orbits.len()).map(|_| None).collect(),
-            generators: frame::GeneratorSpectra::new(prepared.sym.lattice().torus(), prepared.lmax, prepared.orbits.len()),
+            generators: frame::GeneratorSpectra::new(&prepared.sym, &prepared.orbits, prepared.lmax),
         }
     }
 
@@ -156,7 +156,7 @@ impl Collected {
     /// points by the generator spectra).
     pub fn absorb(&mut self, prepared: &Prepared, o: usize, mut result: OrbitResult) {
         let share = std::mem::take(&mut result.generator);
-        self.generators.write(&prepared.sym, o, &prepared.orbits[o], &share);
+        self.generators.write(o, &share);
         self.results[o] = Some(result);
     }
 
@@ -945,16 +945,15 @@ trait LayerScalar: nalgebra::ComplexField<RealField = f64> + Copy {
 }
 
 impl LayerScalar for f64 {
-    /// As it is: [`matmul`] reads the transpose in place.
-    type Prepared = DMatrix<f64>;
+    type Prepared = (DMatrix<f64>, DMatrix<f64>);
     fn prepare(e: DMatrix<f64>) -> Self::Prepared {
-        e
+        (e.transpose(), e)
     }
     fn adjoint_times(e: &Self::Prepared, v: &DMatrix<f64>) -> DMatrix<f64> {
-        matmul::mul(1.0, Part::of(e).t(), Part::of(v))
+        matmul::mul(1.0, Part::of(&e.0), Part::of(v))
     }
     fn times(e: &Self::Prepared, c: &DMatrix<f64>) -> DMatrix<f64> {
-        matmul::mul(1.0, Part::of(e), Part::of(c))
+        matmul::mul(1.0, Part::of(&e.1), Part::of(c))
     }
 }
 

@@ -161,19 +161,28 @@ pub(crate) struct GeneratorSpectra {
 }
 
 impl GeneratorSpectra {
-    pub fn new(torus: [usize; 2], lmax: usize, orbits: usize) -> GeneratorSpectra {
-        GeneratorSpectra { torus, lmax, layers: vec![vec![None; orbits]; lmax], primary: vec![Vec::new(); orbits] }
+    /// Room for every orbit's share; the primary points are found here, up
+    /// front, so that these small lists are not made among the large
+    /// buffers freed and made while the pairs are solved (in WebAssembly
+    /// the memory never shrinks, and such lists can pin it).
+    pub fn new(sym: &Symmetry, orbits: &[Orbit], lmax: usize) -> GeneratorSpectra {
+        let primary = orbits
+            .iter()
+            .map(|orbit| {
+                let fibers: Vec<usize> = orbit.points.iter().map(|&(f, _)| f).collect();
+                pair_fibers::primary(sym, &fibers).iter().enumerate().filter(|(_, &p)| p).map(|(j, _)| j).collect()
+            })
+            .collect();
+        GeneratorSpectra { torus: sym.lattice().torus(), lmax, layers: vec![vec![None; orbits.len()]; lmax], primary }
     }
 
     /// Keeps orbit `o`'s share (made conjugate-symmetric by
     /// [`make_hermitian`]) at its primary points.
-    pub fn write(&mut self, sym: &Symmetry, o: usize, orbit: &Orbit, share: &[(u64, DMatrix<Complex64>)]) {
-        let fibers: Vec<usize> = orbit.points.iter().map(|&(f, _)| f).collect();
-        let primary: Vec<usize> = pair_fibers::primary(sym, &fibers).iter().enumerate().filter(|(_, &p)| p).map(|(j, _)| j).collect();
+    pub fn write(&mut self, o: usize, share: &[(u64, DMatrix<Complex64>)]) {
+        let primary = &self.primary[o];
         for (layer, (_, fibers)) in self.layers.iter_mut().zip(share) {
-            layer[o] = (fibers.ncols() > 0).then(|| fibers.select_columns(&primary));
+            layer[o] = (fibers.ncols() > 0).then(|| fibers.select_columns(primary));
         }
-        self.primary[o] = primary;
     }
 
     /// The generator images, transformed on threads natively. `defects[l]`
@@ -582,9 +591,9 @@ mod tests {
             }
             // The generator images: the real part of the inverse transform
             // of the whole spectrum, and the norm of its imaginary part.
-            let mut spectra = GeneratorSpectra::new(n, layers, orbits.len());
-            for (o, (orbit, share)) in orbits.iter().zip(&shares).enumerate() {
-                spectra.write(&sym, o, orbit, share);
+            let mut spectra = GeneratorSpectra::new(&sym, &orbits, layers);
+            for (o, share) in shares.iter().enumerate() {
+                spectra.write(o, share);
             }
             for (l, generator) in spectra.into_generators(&sym, &orbits, &defects, [0, 0]).iter().enumerate() {
                 let mut z = before[l].clone();
