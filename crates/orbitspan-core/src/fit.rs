@@ -126,7 +126,7 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
         },
         |_, pair| {
             for (o, result) in pair? {
-                collected.absorb(&prepared, o, result);
+                collected.absorb(o, result);
             }
             done += 1;
             check(progress, "fitting frequencies", done as f64 / pairs.len() as f64)
@@ -154,7 +154,7 @@ impl Collected {
 
     /// Stores orbit `o`'s result (its generator share kept at its primary
     /// points by the generator spectra).
-    pub fn absorb(&mut self, prepared: &Prepared, o: usize, mut result: OrbitResult) {
+    pub fn absorb(&mut self, o: usize, mut result: OrbitResult) {
         let share = std::mem::take(&mut result.generator);
         self.generators.write(o, &share);
         self.results[o] = Some(result);

@@ -151,7 +151,6 @@ type LayerShares = Vec<Option<DMatrix<Complex64>>>;
 /// so the result does not depend on where or in which order the shares
 /// were made.
 pub(crate) struct GeneratorSpectra {
-    torus: [usize; 2],
     lmax: usize,
     /// Per layer, per orbit: the share's columns at the orbit's primary
     /// points (`None` for an empty layer or an orbit not yet written).
@@ -173,7 +172,7 @@ impl GeneratorSpectra {
                 pair_fibers::primary(sym, &fibers).iter().enumerate().filter(|(_, &p)| p).map(|(j, _)| j).collect()
             })
             .collect();
-        GeneratorSpectra { torus: sym.lattice().torus(), lmax, layers: vec![vec![None; orbits.len()]; lmax], primary }
+        GeneratorSpectra { lmax, layers: vec![vec![None; orbits.len()]; lmax], primary }
     }
 
     /// Keeps orbit `o`'s share (made conjugate-symmetric by
@@ -199,7 +198,7 @@ impl GeneratorSpectra {
     /// of the group frame lands where it belongs) by the worker that made
     /// it, so no second set of generator images is held.
     pub fn into_generators(self, sym: &Symmetry, orbits: &[Orbit], defects: &[f64], origin: [usize; 2]) -> Vec<Generator> {
-        let [n1, n2] = self.torus;
+        let [n1, n2] = sym.lattice().torus();
         let h2 = half_width(n2);
         let count = self.lmax;
         let primary = &self.primary;
@@ -219,6 +218,9 @@ impl GeneratorSpectra {
                 for ((orbit, share), points) in orbits.iter().zip(shares).zip(primary) {
                     let Some(share) = share else { continue };
                     for (column, &j) in share.column_iter().zip(points) {
+                        // The transport is made again for each layer: held
+                        // for all layers it would take more memory than the
+                        // shares themselves (an index and a phase per value).
                         let t = sym.gather(orbit.rep, orbit.points[j].1);
                         for ((&i, &p), &x) in t.index.iter().zip(&t.phase).zip(column.iter()) {
                             let v = p.conj() * x;
@@ -519,7 +521,6 @@ mod tests {
     use super::*;
     use crate::fit::orbit_pairs;
     use crate::plane_group::{GroupSymbol, PlaneGroup};
-    use crate::spectrum::negative_index;
 
     /// [`make_hermitian`] against the whole spectrum written out (the slow
     /// obvious reference): random shares of every orbit pair scattered into

@@ -23,8 +23,7 @@ const COLUMN_BLOCK: usize = 16;
 /// Forward unnormalised 2-D DFT of a complex row-major `n1 x n2` array, in place.
 ///
 /// Rows first (one batched call), then columns in blocks of
-/// [`COLUMN_BLOCK`]: gathered into `block[b·n1 + r]`, transformed as one
-/// batch, scattered back.
+/// [`COLUMN_BLOCK`] ([`transform_columns`]).
 pub fn fft2_in_place(data: &mut [Complex64], n1: usize, n2: usize, inverse: bool) {
     assert_eq!(data.len(), n1 * n2);
     if data.is_empty() {
@@ -40,20 +39,25 @@ pub fn fft2_in_place(data: &mut [Complex64], n1: usize, n2: usize, inverse: bool
     });
     let mut scratch = vec![Complex64::new(0.0, 0.0); row.get_inplace_scratch_len().max(col.get_inplace_scratch_len())];
     row.process_with_scratch(data, &mut scratch);
-    let mut block = vec![Complex64::new(0.0, 0.0); n1 * COLUMN_BLOCK.min(n2)];
-    for c0 in (0..n2).step_by(COLUMN_BLOCK) {
-        let width = COLUMN_BLOCK.min(n2 - c0);
-        let block = &mut block[..n1 * width];
+    transform_columns(data, n1, n2, col.as_ref(), &mut scratch);
+}
+
+/// Transforms every column of the row-major `n1 x width` array `data` by
+/// `col` (length `n1`), in blocks of [`COLUMN_BLOCK`] columns: gathered
+/// into `block[b·n1 + r]`, transformed as one batch, scattered back.
+fn transform_columns(data: &mut [Complex64], n1: usize, width: usize, col: &dyn rustfft::Fft<f64>, scratch: &mut [Complex64]) {
+    let mut block = vec![Complex64::new(0.0, 0.0); n1 * COLUMN_BLOCK.min(width)];
+    for c0 in (0..width).step_by(COLUMN_BLOCK) {
+        let cols = COLUMN_BLOCK.min(width - c0);
+        let block = &mut block[..n1 * cols];
         for r in 0..n1 {
-            let src = &data[r * n2 + c0..r * n2 + c0 + width];
-            for (b, &z) in src.iter().enumerate() {
+            for (b, &z) in data[r * width + c0..r * width + c0 + cols].iter().enumerate() {
                 block[b * n1 + r] = z;
             }
         }
-        col.process_with_scratch(block, &mut scratch);
+        col.process_with_scratch(block, scratch);
         for r in 0..n1 {
-            let dst = &mut data[r * n2 + c0..r * n2 + c0 + width];
-            for (b, z) in dst.iter_mut().enumerate() {
+            for (b, z) in data[r * width + c0..r * width + c0 + cols].iter_mut().enumerate() {
                 *z = block[b * n1 + r];
             }
         }
@@ -264,22 +268,7 @@ pub fn ifft2_half_real(mut half: Vec<Complex64>, n1: usize, n2: usize) -> Image 
         (planner.plan_fft_inverse(n2), planner.plan_fft_inverse(n1))
     });
     let mut scratch = vec![Complex64::new(0.0, 0.0); row.get_inplace_scratch_len().max(col.get_inplace_scratch_len())];
-    let mut block = vec![Complex64::new(0.0, 0.0); n1 * COLUMN_BLOCK.min(h2)];
-    for c0 in (0..h2).step_by(COLUMN_BLOCK) {
-        let width = COLUMN_BLOCK.min(h2 - c0);
-        let block = &mut block[..n1 * width];
-        for r in 0..n1 {
-            for (b, &z) in half[r * h2 + c0..r * h2 + c0 + width].iter().enumerate() {
-                block[b * n1 + r] = z;
-            }
-        }
-        col.process_with_scratch(block, &mut scratch);
-        for r in 0..n1 {
-            for (b, z) in half[r * h2 + c0..r * h2 + c0 + width].iter_mut().enumerate() {
-                *z = block[b * n1 + r];
-            }
-        }
-    }
+    transform_columns(&mut half, n1, h2, col.as_ref(), &mut scratch);
     let scale = 1.0 / (n1 * n2) as f64;
     let mut pixels = vec![0.0; n1 * n2];
     let mut z = vec![Complex64::new(0.0, 0.0); n2];

@@ -207,7 +207,7 @@ impl FitTasks {
             return Err(corrupt("bytes left after the last orbit"));
         }
         for (o, result) in parsed {
-            self.collected.absorb(&self.prepared, o, result);
+            self.collected.absorb(o, result);
         }
         Ok(())
     }
