@@ -98,6 +98,38 @@ fn orbit_generator(d: usize, rep_gathers: &[Gather], k: usize, psi: &[Complex64]
     (phi, ratio)
 }
 
+/// [`orbit_generator`] for an orbit with a trivial stabiliser, from the
+/// layer's basis `q` (`d x k`) and `c = Qᴴ x` (`k x r`, `x` the reference's
+/// columns `T_jᴴ e(ξ_j)`), without `ψ` or `W`.
+///
+/// With a trivial stabiliser every element `g` is the first (only) one
+/// reaching its point `j(g)`, so the gather of `g` at `ξ0` is the transport
+/// `T_{j(g)}` that put `y_j = T_jᴴ ψ(ξ_j)` there: `W` is `Y = Q C` with its
+/// columns permuted, and `W M Wᴴ = Y M_Y Yᴴ` (`M_Y` made from `YᴴY` the
+/// same way). As `vᴴ (YᴴY) = λ vᴴ` for each eigenpair,
+/// `φ0 = √d Y M_Y (Yᴴ Y) = √d Q C N` with `N = Σ_top k v λ^{−1/2} vᴴ`, and
+/// `YᴴY = Cᴴ C` for orthonormal `Q`: one `d`-long product instead of five.
+/// The conditioning is read from the same eigenvalues.
+fn free_orbit_generator(d: usize, q: &DMatrix<Complex64>, k: usize, c: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
+    let (eigenvalues, eigenvectors) = eigen::hermitian(c.adjoint() * c);
+    let mut order: Vec<usize> = (0..eigenvalues.len()).collect();
+    order.sort_by(|&i, &j| eigenvalues[j].total_cmp(&eigenvalues[i]));
+    let top = eigenvalues[order[0]];
+    let kth = eigenvalues[order[k - 1]];
+    let ratio = if top > 0.0 && kth > 0.0 { kth / top } else { 0.0 };
+    let n = eigenvalues.len();
+    let mut m = DMatrix::<Complex64>::zeros(n, n);
+    if ratio > 0.0 {
+        for &e in &order[..k] {
+            let v = eigenvectors.column(e);
+            let scale = Complex64::new(eigenvalues[e].powf(-0.5), 0.0);
+            m += (v * scale) * v.adjoint();
+        }
+    }
+    let phi = product(q, &(c * m)) * Complex64::new((d as f64).sqrt(), 0.0);
+    (phi, ratio)
+}
+
 /// `Wᴴ W` for a tall, narrow `W` (a few columns): one inner product per
 /// entry of the upper triangle, mirrored (cheaper than the blocked real
 /// products of `fit::gram` at this shape).
@@ -367,35 +399,36 @@ pub(crate) fn orbit_generators(
     forced: Option<&[u64]>,
     references: &References,
 ) -> Result<Vec<(u64, DMatrix<Complex64>)>> {
+    orbit_generators_by(sym, orbit, sol, lmax, forced, references, orbit.stabiliser.len() == 1)
+}
+
+/// [`orbit_generators`], through [`free_orbit_generator`] when `free` (only
+/// right for a trivial stabiliser; the tests set it to `false` to compare
+/// with the general way).
+fn orbit_generators_by(
+    sym: &Symmetry,
+    orbit: &Orbit,
+    sol: &OrbitSolution,
+    lmax: usize,
+    forced: Option<&[u64]>,
+    references: &References,
+    free: bool,
+) -> Result<Vec<(u64, DMatrix<Complex64>)>> {
     let l = sym.lattice();
     let d = l.fiber_len();
     let empty = || (0, DMatrix::zeros(d, 0));
     if sol.layers.iter().all(|q| q.ncols() == 0) {
         return Ok((0..lmax).map(|_| empty()).collect());
     }
-    // ψ lives in a compact buffer of the orbit's own fibers, so the many
-    // gathers per layer read a few hundred kilobytes, not whole spectra.
     let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
-    let (local_transports, rep_gathers) = SLOTS.with(|slots| {
-        let mut slot = slots.borrow_mut();
-        if slot.len() != l.fiber_count() {
-            *slot = vec![usize::MAX; l.fiber_count()];
-        }
-        for (j, &(fiber, _)) in orbit.points.iter().enumerate() {
-            slot[fiber] = j;
-        }
-        let local: Vec<Gather> = transports.iter().map(|t| t.localised(l, &slot)).collect();
-        // Every element's gather at ξ0 in the compact buffer (to read ψ).
-        let at_rep: Vec<Gather> = (0..sym.order()).map(|g| sym.gather(orbit.rep, g).localised(l, &slot)).collect();
-        for &(fiber, _) in &orbit.points {
-            slot[fiber] = usize::MAX;
-        }
-        (local, at_rep)
-    });
+    let (local_transports, rep_gathers) = match free {
+        true => (Vec::new(), Vec::new()),
+        false => compact_gathers(sym, orbit, &transports),
+    };
     // The reference images transported to ξ0, one column per point, made
     // when a candidate is first tried.
     let mut transported: Vec<Option<DMatrix<Complex64>>> = vec![None; REFERENCES as usize];
-    let mut psi = vec![Complex64::new(0.0, 0.0); orbit.points.len() * d];
+    let mut psi = vec![Complex64::new(0.0, 0.0); if free { 0 } else { orbit.points.len() * d }];
     let mut out = Vec::with_capacity(lmax);
     for layer in 0..lmax {
         let q = &sol.layers[layer];
@@ -419,11 +452,16 @@ pub(crate) fn orbit_generators(
                 }
                 x
             });
-            let y = product(q, &adjoint_product(q, x));
-            for (j, t) in local_transports.iter().enumerate() {
-                t.scatter(y.column(j).as_slice(), &mut psi);
-            }
-            let (fibers, worst) = orbit_generator(d, &rep_gathers, k, &psi, &y);
+            let coefficients = adjoint_product(q, x);
+            let (fibers, worst) = if free {
+                free_orbit_generator(d, q, k, &coefficients)
+            } else {
+                let y = product(q, &coefficients);
+                for (j, t) in local_transports.iter().enumerate() {
+                    t.scatter(y.column(j).as_slice(), &mut psi);
+                }
+                orbit_generator(d, &rep_gathers, k, &psi, &y)
+            };
             let better = best.as_ref().map_or(true, |b| worst > b.2);
             if better {
                 best = Some((c, fibers, worst));
@@ -443,6 +481,29 @@ pub(crate) fn orbit_generators(
         out.push((c, fibers));
     }
     Ok(out)
+}
+
+/// The general way's gathers into a compact buffer of the orbit's own
+/// fibers (`ψ` lives there, so the many gathers per layer read a few
+/// hundred kilobytes, not whole spectra): the transports, and every
+/// element's gather at `ξ0` (to read `ψ`).
+fn compact_gathers(sym: &Symmetry, orbit: &Orbit, transports: &[Gather]) -> (Vec<Gather>, Vec<Gather>) {
+    let l = sym.lattice();
+    SLOTS.with(|slots| {
+        let mut slot = slots.borrow_mut();
+        if slot.len() != l.fiber_count() {
+            *slot = vec![usize::MAX; l.fiber_count()];
+        }
+        for (j, &(fiber, _)) in orbit.points.iter().enumerate() {
+            slot[fiber] = j;
+        }
+        let local: Vec<Gather> = transports.iter().map(|t| t.localised(l, &slot)).collect();
+        let at_rep: Vec<Gather> = (0..sym.order()).map(|g| sym.gather(orbit.rep, g).localised(l, &slot)).collect();
+        for &(fiber, _) in &orbit.points {
+            slot[fiber] = usize::MAX;
+        }
+        (local, at_rep)
+    })
 }
 
 /// The `d x (|G| · count)` matrix of fibers at `xi` of `π(γ_g) φ` for every
@@ -521,6 +582,53 @@ mod tests {
     use super::*;
     use crate::fit::orbit_pairs;
     use crate::plane_group::{GroupSymbol, PlaneGroup};
+
+    /// The trivial-stabiliser shortcut ([`free_orbit_generator`]) against
+    /// the general way (`ψ` scattered on the orbit, gathered back at `ξ0`
+    /// by every element, `φ0 = √d W M Wᴴ y`), on every orbit with a trivial
+    /// stabiliser, with random orthonormal layers of one, two and `r`
+    /// columns (random layers are not always well conditioned, and round-off
+    /// grows like machine epsilon over the conditioning, hence 1e-10);
+    /// groups whose operations have translations (pg, pgg, p4g)
+    /// and a centred lattice (cmm) included. Same reference chosen, same
+    /// shares to round-off.
+    #[test]
+    fn free_orbits_match_the_general_way() {
+        let mut rng = SplitMix64(5);
+        for (symbol, n, cell) in [
+            (GroupSymbol::P1, [8, 6], [4, 3]),
+            (GroupSymbol::Pg, [16, 16], [4, 4]),
+            (GroupSymbol::Pgg, [24, 16], [6, 4]),
+            (GroupSymbol::Cmm, [32, 32], [8, 8]),
+            (GroupSymbol::P4g, [24, 24], [4, 4]),
+            (GroupSymbol::P6m, [24, 24], [4, 4]),
+        ] {
+            let sym = Symmetry::new(n, cell, &PlaneGroup::standard(symbol)).unwrap();
+            let d = sym.lattice().fiber_len();
+            let references = References::new(n);
+            let mut compared = 0;
+            for orbit in sym.orbits().iter().filter(|o| o.stabiliser.len() == 1) {
+                let r = orbit.points.len();
+                let layers: Vec<DMatrix<Complex64>> = [1, 2.min(r), r]
+                    .iter()
+                    .map(|&k| {
+                        let a = DMatrix::from_fn(d, k.min(d), |_, _| Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0)));
+                        a.qr().q()
+                    })
+                    .collect();
+                let sol = OrbitSolution { layer_energy: vec![0.0; 3], tail: 0.0, layers, image_discarded: Vec::new() };
+                let fast = orbit_generators_by(&sym, orbit, &sol, 3, None, &references, true).unwrap();
+                let general = orbit_generators_by(&sym, orbit, &sol, 3, None, &references, false).unwrap();
+                for (l, (a, b)) in fast.iter().zip(&general).enumerate() {
+                    assert_eq!(a.0, b.0, "{symbol:?} at {:?} layer {l}: reference", orbit.rep);
+                    let err = (&a.1 - &b.1).norm();
+                    assert!(b.1.norm() > 0.1 && err < 1e-10 * b.1.norm(), "{symbol:?} at {:?} layer {l}: {err} of {}", orbit.rep, b.1.norm());
+                }
+                compared += 1;
+            }
+            assert!(compared > 0, "{symbol:?}: no orbit with a trivial stabiliser");
+        }
+    }
 
     /// [`make_hermitian`] against the whole spectrum written out (the slow
     /// obvious reference): random shares of every orbit pair scattered into
