@@ -40,7 +40,8 @@ impl Gather {
     /// The same gather reading from a compact buffer that holds only some
     /// fibers: fiber `f` at slot `slot[f]`, its `d` values in the order of
     /// [`Lattice::dual`] (`ξ = rep(f) + η_k` at `slot[f] · d + k`). Every
-    /// fiber this gather reads must have a slot.
+    /// fiber this gather reads must have a slot. (The slow obvious form of
+    /// [`Symmetry::gather_local`], which the fit uses.)
     pub fn localised(&self, lattice: &Lattice, slot: &[usize]) -> Gather {
         let n2 = lattice.torus()[1];
         let d = lattice.fiber_len();
@@ -175,8 +176,87 @@ impl Symmetry {
         [gt[0] + oa.t[0] - oab.t[0], gt[1] + oa.t[1] - oab.t[1]]
     }
 
-    /// The gather giving the fiber at `xi` of `π(γ_op) f` (MATH.md §4).
+    /// The gather giving the fiber at `xi` of `π(γ_op) f` (MATH.md §4): for
+    /// each `η` of [`Lattice::dual`], with `ζ = ξ + η`, the index of
+    /// `gᵀζ mod n` and the phase `e^{−2πi ζ·t/n}`.
+    ///
+    /// `η = (j1 s1, j2 s2)` runs over a grid (`s = n / cell`), so `gᵀζ` and
+    /// the integers `ζ_i t_i mod n_i` of the phase advance by fixed steps
+    /// along it: additions with one conditional subtraction, no division
+    /// per value, the same integers and the same floating-point phase as
+    /// the direct formulas (the tests hold the two equal bit for bit).
     pub fn gather(&self, xi: Freq, op: usize) -> Gather {
+        self.stepped_gather(xi, op, None)
+    }
+
+    /// `self.gather(xi, op).localised(self.lattice(), slot)` without the
+    /// whole-torus indices: every value of a gather lies in one fiber `f`
+    /// (`gᵀ` maps fibers to fibers), so the compact index is
+    /// `slot[f] · d + k` with `k` the position of `gᵀζ − rep(f)` in
+    /// [`Lattice::dual`], stepped along with `gᵀζ` in units of the grid.
+    pub fn gather_local(&self, xi: Freq, op: usize, slot: &[usize]) -> Gather {
+        self.stepped_gather(xi, op, Some(slot))
+    }
+
+    fn stepped_gather(&self, xi: Freq, op: usize, slot: Option<&[usize]>) -> Gather {
+        let o = &self.ops[op];
+        let l = &self.lattice;
+        let n = l.torus();
+        let cell = l.cell();
+        let step = [n[0] / cell[0], n[1] / cell[1]];
+        let wrap = |a: usize, b: usize, m: usize| if a + b >= m { a + b - m } else { a + b };
+        let wrap2 = |a: Freq, b: Freq, m: [usize; 2]| [wrap(a[0], b[0], m[0]), wrap(a[1], b[1], m[1])];
+        // `x t mod m` for the phase, and its step along each axis.
+        let times = |x: usize, t: i64, m: usize| (x as i128 * t as i128).rem_euclid(m as i128) as usize;
+        let (row_move, column_move) = (l.dual_action(&o.g, [step[0], 0]), l.dual_action(&o.g, [0, step[1]]));
+        let (t_row_move, t_column_move) = (times(step[0], o.t[0], n[0]), times(step[1], o.t[1], n[1]));
+        let translated = o.t != [0, 0];
+        let mut index = Vec::with_capacity(self.dual.len());
+        let mut phase = Vec::with_capacity(self.dual.len());
+        let mut row = l.dual_action(&o.g, xi);
+        let mut t_row = times(xi[0], o.t[0], n[0]);
+        // Compact indices: the fiber's base and `gᵀζ − rep(f)` in grid
+        // units (mod cell), with the moves in the same units.
+        let in_grid = |v: Freq| [v[0] / step[0], v[1] / step[1]];
+        let local = slot.map(|slot| {
+            let f = l.fiber_of(row);
+            (slot[f] * l.fiber_len(), in_grid(l.sub(row, l.fiber_rep(f))))
+        });
+        let (grid_row_move, grid_column_move) = (in_grid(row_move), in_grid(column_move));
+        let (base, mut grid_row) = local.unwrap_or((0, [0, 0]));
+        let half = cell[1] / 2;
+        for j1 in 0..cell[0] {
+            let mut at = row;
+            let mut grid_at = grid_row;
+            let mut t_column = times(xi[1], o.t[1], n[1]);
+            for j2 in 0..cell[1] {
+                if !l.is_centred() || (j1 + j2) % 2 == 0 {
+                    index.push(match (local.is_some(), l.is_centred()) {
+                        (false, _) => at[0] * n[1] + at[1],
+                        (true, false) => base + grid_at[0] * cell[1] + grid_at[1],
+                        (true, true) => base + grid_at[0] * half + grid_at[1] / 2,
+                    });
+                    phase.push(if translated {
+                        let turns = (t_row as f64 / n[0] as f64 + t_column as f64 / n[1] as f64).fract();
+                        Complex64::from_polar(1.0, -2.0 * std::f64::consts::PI * turns)
+                    } else {
+                        Complex64::new(1.0, 0.0)
+                    });
+                }
+                at = wrap2(at, column_move, n);
+                grid_at = wrap2(grid_at, grid_column_move, cell);
+                t_column = wrap(t_column, t_column_move, n[1]);
+            }
+            row = wrap2(row, row_move, n);
+            grid_row = wrap2(grid_row, grid_row_move, cell);
+            t_row = wrap(t_row, t_row_move, n[0]);
+        }
+        Gather { index, phase }
+    }
+
+    /// [`Symmetry::gather`] by its direct formulas (the slow obvious reference).
+    #[cfg(test)]
+    pub(crate) fn gather_reference(&self, xi: Freq, op: usize) -> Gather {
         let o = &self.ops[op];
         let mut index = Vec::with_capacity(self.dual.len());
         let mut phase = Vec::with_capacity(self.dual.len());
@@ -359,6 +439,49 @@ mod tests {
                         assert!((z - v[j]).norm() < 1e-9, "{symbol:?} op {k}");
                     }
                 }
+            }
+        }
+    }
+
+    /// The stepped gather against the direct formulas, bit for bit: every
+    /// group (centred, hexagonal and glide ones among them), every
+    /// operation, every frequency of tori with one and several cells.
+    #[test]
+    fn gather_equals_its_direct_formulas() {
+        for symbol in GroupSymbol::ALL {
+            for (n, cell) in [([12, 12], [4, 4]), ([24, 24], [6, 6]), ([8, 8], [8, 8])] {
+                let Ok(sym) = Symmetry::new(n, cell, &PlaneGroup::standard(symbol)) else { continue };
+                for k in 0..sym.order() {
+                    for i in 0..n[0] * n[1] {
+                        let xi = [i / n[1], i % n[1]];
+                        let (fast, slow) = (sym.gather(xi, k), sym.gather_reference(xi, k));
+                        assert_eq!(fast.index, slow.index, "{symbol:?} op {k} at {xi:?}");
+                        assert!(fast.phase.iter().zip(&slow.phase).all(|(a, b)| a == b), "{symbol:?} op {k} at {xi:?}");
+                    }
+                }
+            }
+        }
+        // The compact indices against `localised`, fibers in a scrambled
+        // slot order.
+        for symbol in GroupSymbol::ALL {
+            let Ok(sym) = Symmetry::new([24, 24], [6, 6], &PlaneGroup::standard(symbol)) else { continue };
+            let count = sym.lattice().fiber_count();
+            let slot: Vec<usize> = (0..count).map(|f| (f * 7 + 3) % count).collect();
+            for k in 0..sym.order() {
+                for i in 0..24 * 24 {
+                    let xi = [i / 24, i % 24];
+                    let (fast, slow) = (sym.gather_local(xi, k, &slot), sym.gather_reference(xi, k).localised(sym.lattice(), &slot));
+                    assert_eq!(fast.index, slow.index, "{symbol:?} op {k} at {xi:?}");
+                    assert!(fast.phase == slow.phase, "{symbol:?} op {k} at {xi:?}");
+                }
+            }
+        }
+        let pmg = Symmetry::new([16, 12], [8, 4], &PlaneGroup::standard(GroupSymbol::Pmg)).unwrap();
+        for k in 0..pmg.order() {
+            for i in 0..16 * 12 {
+                let xi = [i / 12, i % 12];
+                assert_eq!(pmg.gather(xi, k).index, pmg.gather_reference(xi, k).index);
+                assert!(pmg.gather(xi, k).phase == pmg.gather_reference(xi, k).phase);
             }
         }
     }

@@ -479,7 +479,7 @@ pub(crate) fn solve_kept_pair(
 
 /// Where an orbit's fibers are read: compact buffers that hold only the
 /// fibers of its pair (fiber `f` at slot `slot[f]`, see
-/// [`Gather::localised`]), one buffer per image.
+/// [`Symmetry::gather_local`]), one buffer per image.
 pub(crate) struct Fibers<'a> {
     buffers: &'a [Vec<Complex64>],
     slot: &'a [usize],
@@ -492,7 +492,7 @@ impl Fibers<'_> {
     }
     /// [`Symmetry::gather`] reading from [`Fibers::data`].
     fn gather(&self, sym: &Symmetry, xi: [usize; 2], op: usize) -> Gather {
-        sym.gather(xi, op).localised(sym.lattice(), self.slot)
+        sym.gather_local(xi, op, self.slot)
     }
 }
 

@@ -423,7 +423,7 @@ fn orbit_generators_by(
     let transports: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
     let (local_transports, rep_gathers) = match free {
         true => (Vec::new(), Vec::new()),
-        false => compact_gathers(sym, orbit, &transports),
+        false => compact_gathers(sym, orbit),
     };
     // The reference images transported to ξ0, one column per point, made
     // when a candidate is first tried.
@@ -487,7 +487,7 @@ fn orbit_generators_by(
 /// fibers (`ψ` lives there, so the many gathers per layer read a few
 /// hundred kilobytes, not whole spectra): the transports, and every
 /// element's gather at `ξ0` (to read `ψ`).
-fn compact_gathers(sym: &Symmetry, orbit: &Orbit, transports: &[Gather]) -> (Vec<Gather>, Vec<Gather>) {
+fn compact_gathers(sym: &Symmetry, orbit: &Orbit) -> (Vec<Gather>, Vec<Gather>) {
     let l = sym.lattice();
     SLOTS.with(|slots| {
         let mut slot = slots.borrow_mut();
@@ -497,8 +497,8 @@ fn compact_gathers(sym: &Symmetry, orbit: &Orbit, transports: &[Gather]) -> (Vec
         for (j, &(fiber, _)) in orbit.points.iter().enumerate() {
             slot[fiber] = j;
         }
-        let local: Vec<Gather> = transports.iter().map(|t| t.localised(l, &slot)).collect();
-        let at_rep: Vec<Gather> = (0..sym.order()).map(|g| sym.gather(orbit.rep, g).localised(l, &slot)).collect();
+        let local: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather_local(orbit.rep, op, &slot)).collect();
+        let at_rep: Vec<Gather> = (0..sym.order()).map(|g| sym.gather_local(orbit.rep, g, &slot)).collect();
         for &(fiber, _) in &orbit.points {
             slot[fiber] = usize::MAX;
         }

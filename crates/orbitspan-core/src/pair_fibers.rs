@@ -12,7 +12,7 @@
 //!
 //! [`expand`] rebuilds a pair's fibers for every image in slot order (the
 //! order of the pair's points, first orbit first), which is what the
-//! per-pair solver reads through [`crate::fiber::Gather::localised`].
+//! per-pair solver reads through [`crate::fiber::Symmetry::gather_local`].
 
 use crate::error::{Error, Result};
 use crate::fiber::{Orbit, Symmetry};
