@@ -881,10 +881,10 @@ fn symmetrised(c: &DMatrix<Complex64>, ops: &[Monomial]) -> DMatrix<Complex64> {
 /// Orthonormalises the kept vectors layer by layer: against all earlier
 /// layers together by block classical Gram–Schmidt, run twice when the
 /// first pass cancels much of a vector (matrix products; the earlier layers
-/// are the same for every `lmax`), then
-/// within the layer by modified Gram–Schmidt run twice. The Gram path's
-/// `Y v / ||Y v||` loses orthogonality for small eigenvalues. Layer `l`
-/// depends only on layers `< l`, so the layers stay nested.
+/// are the same for every `lmax`), then within the layer by Cholesky QR run
+/// twice ([`cholesky_qr2`]). The Gram path's `Y v / ||Y v||` loses
+/// orthogonality for small eigenvalues. Layer `l` depends only on layers
+/// `< l`, so the layers stay nested.
 fn orthonormal_layers<T: LayerScalar>(layer_vectors: Vec<Vec<DVector<T>>>, d: usize, rep: [usize; 2]) -> Result<Vec<DMatrix<T>>> {
     let mut layers: Vec<DMatrix<T>> = Vec::with_capacity(layer_vectors.len());
     // All earlier layers side by side.
@@ -910,27 +910,39 @@ fn orthonormal_layers<T: LayerScalar>(layer_vectors: Vec<Vec<DVector<T>>>, d: us
                 }
             }
         }
-        let mut q: Vec<DVector<T>> = Vec::with_capacity(v.ncols());
-        for j in 0..v.ncols() {
-            let mut x = v.column(j).into_owned();
-            for _ in 0..2 {
-                for e in &q {
-                    let c = e.dotc(&x);
-                    x -= e * c;
-                }
-            }
-            let norm = x.norm();
-            if norm > 0.5 {
-                q.push(x.unscale(norm));
-            } else {
-                return Err(Error::Internal(format!("fiber {rep:?}: kept vectors are not independent")));
-            }
-        }
-        earlier.extend(q.iter().cloned());
+        let q = cholesky_qr2(v).ok_or_else(|| Error::Internal(format!("fiber {rep:?}: kept vectors are not independent")))?;
+        earlier.extend(q.column_iter().map(|c| c.into_owned()));
         earlier_matrix = Some(T::prepare(DMatrix::from_columns(&earlier)));
-        layers.push(DMatrix::from_columns(&q));
+        layers.push(q);
     }
     Ok(layers)
+}
+
+/// The orthonormal factor `Q` of `V = Q R` (`R` upper triangular with a
+/// positive diagonal: the vectors Gram–Schmidt would give) by Cholesky QR
+/// run twice (CholeskyQR2, Fukaya, Nakatsukasa, Yanagisawa and Yamamoto,
+/// 2014): `VᴴV = R₁ᴴR₁`, `Q₁ = V R₁⁻¹`, then the same on `Q₁`, which
+/// leaves `Q` orthonormal to round-off when `V` is well conditioned. Two
+/// small Gram matrices and four products with `V` instead of one
+/// vector operation per pair of columns. `R₁`'s diagonal holds the norm
+/// of each vector's part orthogonal to those before it (what modified
+/// Gram–Schmidt would divide by); `None` when one is below 0.5 (the vectors
+/// come in with norm about 1: they are not independent) or the Cholesky
+/// factorisation fails.
+fn cholesky_qr2<T: LayerScalar>(v: DMatrix<T>) -> Option<DMatrix<T>> {
+    let mut q = v;
+    for pass in 0..2 {
+        let prepared = T::prepare(q.clone());
+        let gram = T::adjoint_times(&prepared, &q);
+        let l = nalgebra::Cholesky::new(gram)?.unpack();
+        if pass == 0 && (0..l.nrows()).any(|j| !(l[(j, j)].real() > 0.5)) {
+            return None;
+        }
+        // R⁻¹ = (L⁻¹)ᴴ with L = Rᴴ the Cholesky factor.
+        let inverse = l.solve_lower_triangular(&DMatrix::identity(l.nrows(), l.nrows()))?.adjoint();
+        q = T::times(&prepared, &inverse);
+    }
+    Some(q)
 }
 
 /// The scalars [`orthonormal_layers`] works in: `Eᴴ V` and `E C` through
@@ -1299,5 +1311,36 @@ mod layer_tests {
     fn orthonormal_layers_correct_small_errors_real_and_complex() {
         check(|rng| rng.normal());
         check(|rng| Complex64::new(rng.normal(), rng.normal()));
+    }
+
+    /// [`cholesky_qr2`] against nalgebra's Householder QR (the slow obvious
+    /// reference; the factor whose `R` has a positive diagonal is unique, so
+    /// Householder's columns are scaled by the phase of `R`'s diagonal), on
+    /// unit vectors far from orthogonal; a vector whose part orthogonal to
+    /// the others is below 0.5 is refused.
+    fn check_qr<T: LayerScalar>(make: impl Fn(&mut SplitMix64) -> T) {
+        let mut rng = SplitMix64(23);
+        let (d, k) = (40, 4);
+        let common = DVector::<T>::from_fn(d, |_, _| make(&mut rng));
+        let v = DMatrix::<T>::from_fn(d, k, |r, _| common[r].scale(0.5) + make(&mut rng));
+        let v = DMatrix::from_columns(&v.column_iter().map(|c| c.normalize()).collect::<Vec<_>>());
+        let qr = v.clone().qr();
+        let (reference, r) = (qr.q(), qr.r());
+        let q = cholesky_qr2(v.clone()).expect("independent vectors");
+        for j in 0..k {
+            let phase = r[(j, j)] / T::from_real(r[(j, j)].modulus());
+            let err = (q.column(j) - reference.column(j) * phase).norm();
+            assert!(err < 1e-12, "column {j}: {err}");
+        }
+        let mut dependent = v.clone();
+        let mixed = (v.column(0) + v.column(1).scale(0.1)).normalize();
+        dependent.set_column(3, &mixed);
+        assert!(cholesky_qr2(dependent).is_none(), "a dependent vector was kept");
+    }
+
+    #[test]
+    fn cholesky_qr2_gives_the_qr_factor_real_and_complex() {
+        check_qr(|rng| rng.normal());
+        check_qr(|rng| Complex64::new(rng.normal(), rng.normal()));
     }
 }
