@@ -658,7 +658,7 @@ pub(crate) fn solve_orbit(
         } else if whole {
             hermitian_eigen(x.clone())
         } else {
-            hermitian_eigen(adjoint_product(&b.basis, &product(&x, &b.basis)))
+            hermitian_eigen(b.sparse().compress(&x))
         };
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
@@ -715,7 +715,7 @@ pub(crate) fn solve_orbit(
                 continue;
             }
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), es.len(), |row, c| eig.eigenvectors[(row, es[c])]);
-            let v = if whole { coeffs } else { product(&b.basis, &coeffs) };
+            let v = if whole { coeffs } else { b.sparse().expand(&coeffs) };
             let u = match &y {
                 Some((ya, yb)) => product_parts(ya, yb, &v),
                 None => v,
@@ -773,7 +773,7 @@ pub(crate) fn solve_orbit(
                 continue;
             }
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), rest.len(), |row, c| eig.eigenvectors[(row, rest[c])]);
-            let v = if whole { coeffs } else { product(&b.basis, &coeffs) };
+            let v = if whole { coeffs } else { b.sparse().expand(&coeffs) };
             columns.extend(v.column_iter().map(|c| c.into_owned()));
         }
         Discard::Complement(if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) })
