@@ -697,6 +697,12 @@ pub(crate) fn solve_orbit(
         decompositions.push((eig, groups, kept));
     }
     for (b, (eig, groups, _)) in blocks.iter().zip(&decompositions) {
+        // Gram path with a block basis `B`: `Y B` once per block, in real
+        // and imaginary parts (each column of `B` has at most `|H|` entries).
+        let block_vectors = match &y {
+            Some((ya, yb)) if !whole => Some(b.sparse().times_parts(ya, yb)),
+            _ => None,
+        };
         // One product per (block, layer): its shape does not depend on how
         // many layers are kept, so the generators for L are bit-identical to
         // the first L for L + 1.
@@ -715,10 +721,12 @@ pub(crate) fn solve_orbit(
                 continue;
             }
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), es.len(), |row, c| eig.eigenvectors[(row, es[c])]);
-            let v = if whole { coeffs } else { b.sparse().expand(&coeffs) };
-            let u = match &y {
-                Some((ya, yb)) => product_parts(ya, yb, &v),
-                None => v,
+            let u = match (&y, &block_vectors) {
+                // Gram path: `Y (B c) = (Y B) c`, with `Y B` made once per block.
+                (Some(_), Some((za, zb))) => product_parts(za, zb, &coeffs),
+                (Some((ya, yb)), None) => product_parts(ya, yb, &coeffs),
+                (None, _) if whole => coeffs,
+                (None, _) => b.sparse().expand(&coeffs),
             };
             for col in u.column_iter() {
                 let norm = col.norm();

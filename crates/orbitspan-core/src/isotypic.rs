@@ -89,6 +89,22 @@ impl SparseBasis {
             sum
         })
     }
+    /// `Y B` for `Y = A + iB` given by its real and imaginary parts
+    /// (`n` rows each), returned the same way.
+    pub fn times_parts(&self, a: &DMatrix<f64>, b: &DMatrix<f64>) -> (DMatrix<f64>, DMatrix<f64>) {
+        assert_eq!(a.ncols(), self.rows, "Y B needs Y with {} columns", self.rows);
+        let (mut re, mut im) = (DMatrix::zeros(a.nrows(), self.columns.len()), DMatrix::zeros(a.nrows(), self.columns.len()));
+        for (i, entries) in self.columns.iter().enumerate() {
+            for &(k, u) in entries {
+                let (ya, yb) = (a.column(k), b.column(k));
+                re.column_mut(i).axpy(u.re, &ya, 1.0);
+                re.column_mut(i).axpy(-u.im, &yb, 1.0);
+                im.column_mut(i).axpy(u.im, &ya, 1.0);
+                im.column_mut(i).axpy(u.re, &yb, 1.0);
+            }
+        }
+        (re, im)
+    }
     /// `B C` for a matrix `C` with one row per basis vector.
     pub fn expand(&self, c: &DMatrix<Complex64>) -> DMatrix<Complex64> {
         assert_eq!(c.nrows(), self.columns.len(), "coefficients for {} basis vectors", self.columns.len());
@@ -320,6 +336,11 @@ mod tests {
                     let c = random(b.basis.ncols(), 3);
                     let dense = &b.basis * &c;
                     assert!((sparse.expand(&c) - &dense).norm() < 1e-12 * dense.norm(), "{symbol:?} at {:?}: expand", orbit.rep);
+                    let y = random(5, n);
+                    let dense = &y * &b.basis;
+                    let (re, im) = sparse.times_parts(&y.map(|z| z.re), &y.map(|z| z.im));
+                    let got = re.zip_map(&im, Complex64::new);
+                    assert!((got - &dense).norm() < 1e-12 * dense.norm(), "{symbol:?} at {:?}: times_parts", orbit.rep);
                     checked += 1;
                 }
             }
