@@ -78,24 +78,32 @@ const GOOD_CONDITIONING: f64 = 1e-4;
 /// the conditioning met (smallest over largest kept eigenvalue of `WᴴW`).
 fn orbit_generator(d: usize, rep_gathers: &[Gather], k: usize, psi: &[Complex64], y: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
     let w = gathered_matrix(rep_gathers, &[psi]);
-    let (eigenvalues, eigenvectors) = eigen::hermitian(narrow_gram(&w));
+    // M = V Σ⁻³ Vᴴ over the top k eigenpairs; φ0 = √d W M (Wᴴ y).
+    let (m, ratio) = top_power(narrow_gram(&w), k, -1.5);
+    let phi = product(&w, &(m * adjoint_product(&w, y))) * Complex64::new((d as f64).sqrt(), 0.0);
+    (phi, ratio)
+}
+
+/// `Σ v λ^power vᴴ` over the top `k` eigenpairs of the Hermitian `gram`
+/// (zero when the `k`-th eigenvalue is not positive), and the conditioning
+/// `λ_k / λ_1` (zero then too).
+fn top_power(gram: DMatrix<Complex64>, k: usize, power: f64) -> (DMatrix<Complex64>, f64) {
+    let (eigenvalues, eigenvectors) = eigen::hermitian(gram);
     let mut order: Vec<usize> = (0..eigenvalues.len()).collect();
     order.sort_by(|&i, &j| eigenvalues[j].total_cmp(&eigenvalues[i]));
     let top = eigenvalues[order[0]];
     let kth = eigenvalues[order[k - 1]];
     let ratio = if top > 0.0 && kth > 0.0 { kth / top } else { 0.0 };
     let n = eigenvalues.len();
-    // M = V Σ⁻³ Vᴴ over the top k eigenpairs; φ0 = √d W M (Wᴴ y).
     let mut m = DMatrix::<Complex64>::zeros(n, n);
     if ratio > 0.0 {
         for &e in &order[..k] {
             let v = eigenvectors.column(e);
-            let scale = Complex64::new(eigenvalues[e].powf(-1.5), 0.0);
+            let scale = Complex64::new(eigenvalues[e].powf(power), 0.0);
             m += (v * scale) * v.adjoint();
         }
     }
-    let phi = product(&w, &(m * adjoint_product(&w, y))) * Complex64::new((d as f64).sqrt(), 0.0);
-    (phi, ratio)
+    (m, ratio)
 }
 
 /// [`orbit_generator`] for an orbit with a trivial stabiliser, from the
@@ -111,22 +119,8 @@ fn orbit_generator(d: usize, rep_gathers: &[Gather], k: usize, psi: &[Complex64]
 /// `YᴴY = Cᴴ C` for orthonormal `Q`: one `d`-long product instead of five.
 /// The conditioning is read from the same eigenvalues.
 fn free_orbit_generator(d: usize, q: &DMatrix<Complex64>, k: usize, c: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
-    let (eigenvalues, eigenvectors) = eigen::hermitian(c.adjoint() * c);
-    let mut order: Vec<usize> = (0..eigenvalues.len()).collect();
-    order.sort_by(|&i, &j| eigenvalues[j].total_cmp(&eigenvalues[i]));
-    let top = eigenvalues[order[0]];
-    let kth = eigenvalues[order[k - 1]];
-    let ratio = if top > 0.0 && kth > 0.0 { kth / top } else { 0.0 };
-    let n = eigenvalues.len();
-    let mut m = DMatrix::<Complex64>::zeros(n, n);
-    if ratio > 0.0 {
-        for &e in &order[..k] {
-            let v = eigenvectors.column(e);
-            let scale = Complex64::new(eigenvalues[e].powf(-0.5), 0.0);
-            m += (v * scale) * v.adjoint();
-        }
-    }
-    let phi = product(q, &(c * m)) * Complex64::new((d as f64).sqrt(), 0.0);
+    let (n, ratio) = top_power(c.adjoint() * c, k, -0.5);
+    let phi = product(q, &(c * n)) * Complex64::new((d as f64).sqrt(), 0.0);
     (phi, ratio)
 }
 
