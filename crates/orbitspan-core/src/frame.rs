@@ -50,7 +50,8 @@ pub(crate) struct Generator {
 fn reference_value(torus: [usize; 2], which: u64, i: usize) -> Complex64 {
     let [n1, n2] = torus;
     let (a, b) = (i / n2, i % n2);
-    let mirror = ((n1 - a) % n1) * n2 + (n2 - b) % n2;
+    let negative = |x: usize, n: usize| if x == 0 { 0 } else { n - x };
+    let mirror = negative(a, n1) * n2 + negative(b, n2);
     let draw = |k: usize| {
         let mut rng = SplitMix64(0x0b17_5ba2_0000_0001 ^ which.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ (k as u64).wrapping_mul(0xD1B5_4A32_D192_ED03));
         (rng.between(-1.0, 1.0), rng.between(-1.0, 1.0))
