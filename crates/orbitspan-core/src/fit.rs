@@ -269,6 +269,9 @@ impl Prepared {
         )?;
         drop(places);
         fibers.finish_filling();
+        // Each image's energy once; their sum in image order is `Stack::energy`.
+        let energies: Vec<f64> = stack.images().iter().map(Image::energy).collect();
+        let total_energy = energies.iter().sum();
         Ok(Prepared {
             settings: settings.clone(),
             path,
@@ -283,8 +286,8 @@ impl Prepared {
             height: h,
             width: w,
             labels: stack.labels().to_vec(),
-            energies: stack.images().iter().map(Image::energy).collect(),
-            total_energy: stack.energy(),
+            energies,
+            total_energy,
         })
     }
 
