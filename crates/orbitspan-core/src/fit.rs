@@ -700,10 +700,11 @@ pub(crate) fn solve_orbit(
         decompositions.push((eig, groups, kept));
     }
     for (b, (eig, groups, _)) in blocks.iter().zip(&decompositions) {
+        let sparse = (!whole).then(|| b.sparse());
         // Gram path with a block basis `B`: `Y B` once per block, in real
         // and imaginary parts (each column of `B` has at most `|H|` entries).
-        let block_vectors = match &y {
-            Some((ya, yb)) if !whole => Some(b.sparse().times_parts(ya, yb)),
+        let block_vectors = match (&y, &sparse) {
+            (Some((ya, yb)), Some(sparse)) => Some(sparse.times_parts(ya, yb)),
             _ => None,
         };
         // One product per (block, layer): its shape does not depend on how
@@ -724,12 +725,12 @@ pub(crate) fn solve_orbit(
                 continue;
             }
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), es.len(), |row, c| eig.eigenvectors[(row, es[c])]);
-            let u = match (&y, &block_vectors) {
+            let u = match (&y, &block_vectors, &sparse) {
                 // Gram path: `Y (B c) = (Y B) c`, with `Y B` made once per block.
-                (Some(_), Some((za, zb))) => product_parts(za, zb, &coeffs),
-                (Some((ya, yb)), None) => product_parts(ya, yb, &coeffs),
-                (None, _) if whole => coeffs,
-                (None, _) => b.sparse().expand(&coeffs),
+                (Some(_), Some((za, zb)), _) => product_parts(za, zb, &coeffs),
+                (Some((ya, yb)), None, _) => product_parts(ya, yb, &coeffs),
+                (None, _, Some(sparse)) => sparse.expand(&coeffs),
+                (None, _, None) => coeffs,
             };
             for col in u.column_iter() {
                 let norm = col.norm();
