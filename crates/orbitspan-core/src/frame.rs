@@ -117,7 +117,8 @@ fn top_power(gram: DMatrix<Complex64>, k: usize, power: f64) -> (DMatrix<Complex
 /// columns permuted, and `W M Wᴴ = Y M_Y Yᴴ` (`M_Y` made from `YᴴY` the
 /// same way). As `vᴴ (YᴴY) = λ vᴴ` for each eigenpair,
 /// `φ0 = √d Y M_Y (Yᴴ Y) = √d Q C N` with `N = Σ_top k v λ^{−1/2} vᴴ`, and
-/// `YᴴY = Cᴴ C` for orthonormal `Q`: one `d`-long product instead of five.
+/// `YᴴY = Cᴴ C` for orthonormal `Q`: two `d`-long products per layer
+/// (`C = Qᴴx`, made by the caller, and `Q (C N)`) instead of five.
 /// The conditioning is read from the same eigenvalues.
 fn free_orbit_generator(d: usize, q: &DMatrix<Complex64>, k: usize, c: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
     let (n, ratio) = top_power(c.adjoint() * c, k, -0.5);
