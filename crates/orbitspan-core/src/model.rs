@@ -192,12 +192,13 @@ impl Model {
         };
         let json = serde_json::to_vec(&header).expect("header serialises");
         let start = 16 + json.len();
-        let mut out = Vec::with_capacity(start + 8 * self.generators.len() * self.height * self.width);
+        let length = start + 8 * self.generators.len() * self.height * self.width;
+        let mut out = Vec::with_capacity(length);
         out.extend_from_slice(MAGIC);
         out.extend_from_slice(&VERSION.to_le_bytes());
         out.extend_from_slice(&(json.len() as u32).to_le_bytes());
         out.extend_from_slice(&json);
-        out.resize(out.capacity(), 0);
+        out.resize(length, 0);
         for (chunk, v) in out[start..].chunks_exact_mut(8).zip(pixels()) {
             chunk.copy_from_slice(&v.to_le_bytes());
         }
