@@ -1185,7 +1185,7 @@ pub(crate) fn gram(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<Complex64> {
 }
 
 /// Real and imaginary parts.
-fn split(m: &DMatrix<Complex64>) -> (DMatrix<f64>, DMatrix<f64>) {
+pub(crate) fn split(m: &DMatrix<Complex64>) -> (DMatrix<f64>, DMatrix<f64>) {
     (m.map(|z| z.re), m.map(|z| z.im))
 }
 

@@ -24,7 +24,7 @@
 use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
-use crate::fit::{adjoint_product, from_group_frame, product, OrbitSolution};
+use crate::fit::{adjoint_product_parts, from_group_frame, product_parts, split, OrbitSolution};
 use crate::pair_fibers;
 use crate::prng::SplitMix64;
 use crate::spectrum::{half_width, ifft2_half_real, negative_index};
@@ -81,7 +81,8 @@ fn orbit_generator(d: usize, rep_gathers: &[Gather], k: usize, psi: &[Complex64]
     let w = gathered_matrix(rep_gathers, &[psi]);
     // M = V Σ⁻³ Vᴴ over the top k eigenpairs; φ0 = √d W M (Wᴴ y).
     let (m, ratio) = top_power(narrow_gram(&w), k, -1.5);
-    let phi = product(&w, &(m * adjoint_product(&w, y))) * Complex64::new((d as f64).sqrt(), 0.0);
+    let (wa, wb) = split(&w);
+    let phi = product_parts(&wa, &wb, &(m * adjoint_product_parts(&wa, &wb, y))) * Complex64::new((d as f64).sqrt(), 0.0);
     (phi, ratio)
 }
 
@@ -108,7 +109,7 @@ fn top_power(gram: DMatrix<Complex64>, k: usize, power: f64) -> (DMatrix<Complex
 }
 
 /// [`orbit_generator`] for an orbit with a trivial stabiliser, from the
-/// layer's basis `q` (`d x k`) and `c = Qᴴ x` (`k x r`, `x` the reference's
+/// layer's basis `q` (`d x k`, real and imaginary parts) and `c = Qᴴ x` (`k x r`, `x` the reference's
 /// columns `T_jᴴ e(ξ_j)`), without `ψ` or `W`.
 ///
 /// With a trivial stabiliser every element `g` is the first (only) one
@@ -120,9 +121,9 @@ fn top_power(gram: DMatrix<Complex64>, k: usize, power: f64) -> (DMatrix<Complex
 /// `YᴴY = Cᴴ C` for orthonormal `Q`: two `d`-long products per layer
 /// (`C = Qᴴx`, made by the caller, and `Q (C N)`) instead of five.
 /// The conditioning is read from the same eigenvalues.
-fn free_orbit_generator(d: usize, q: &DMatrix<Complex64>, k: usize, c: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
+fn free_orbit_generator(d: usize, q: &(DMatrix<f64>, DMatrix<f64>), k: usize, c: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
     let (n, ratio) = top_power(c.adjoint() * c, k, -0.5);
-    let phi = product(q, &(c * n)) * Complex64::new((d as f64).sqrt(), 0.0);
+    let phi = product_parts(&q.0, &q.1, &(c * n)) * Complex64::new((d as f64).sqrt(), 0.0);
     (phi, ratio)
 }
 
@@ -437,6 +438,8 @@ fn orbit_generators_by(
             Some(f) => vec![f[layer]],
             None => (0..REFERENCES).collect(),
         };
+        // The layer's basis split once for all its products.
+        let parts = split(q);
         let mut best: Option<(u64, DMatrix<Complex64>, f64)> = None;
         for c in candidates {
             // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
@@ -448,11 +451,11 @@ fn orbit_generators_by(
                 }
                 x
             });
-            let coefficients = adjoint_product(q, x);
+            let coefficients = adjoint_product_parts(&parts.0, &parts.1, x);
             let (fibers, worst) = if free {
-                free_orbit_generator(d, q, k, &coefficients)
+                free_orbit_generator(d, &parts, k, &coefficients)
             } else {
-                let y = product(q, &coefficients);
+                let y = product_parts(&parts.0, &parts.1, &coefficients);
                 for (j, t) in local_transports.iter().enumerate() {
                     t.scatter(y.column(j).as_slice(), &mut psi);
                 }
@@ -544,7 +547,8 @@ pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>]
             for (i, s) in spectra.iter().enumerate() {
                 gather.apply_into(s, x.column_mut(i).as_mut_slice());
             }
-            let y = product(&w, &adjoint_product(&w, &x)) * Complex64::new(1.0 / d, 0.0);
+            let (wa, wb) = split(&w);
+            let y = product_parts(&wa, &wb, &adjoint_product_parts(&wa, &wb, &x)) * Complex64::new(1.0 / d, 0.0);
             out.push((gather, y));
         }
         out
