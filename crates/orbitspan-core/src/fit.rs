@@ -607,7 +607,13 @@ pub(crate) fn solve_orbit(
         }
         let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| gram_unitary(sym, orbit.rep, h, m)).collect();
         let parts = split(&y);
-        (gram(&parts.0, &parts.1) * Complex64::new(1.0 / hsize, 0.0), ops, Some(parts))
+        // A trivial stabiliser (`|H| = 1`): the whole Gram matrix; with a
+        // stabiliser each block's is made from `Y B` below.
+        let x = match ops.len() <= 1 {
+            true => gram(&parts.0, &parts.1),
+            false => DMatrix::zeros(0, 0),
+        };
+        (x, ops, Some(parts))
     } else {
         let ops = orbit
             .stabiliser
@@ -631,25 +637,48 @@ pub(crate) fn solve_orbit(
         (x, ops, None)
     };
     let real_moment = untwisted.as_ref().map(|u| &u.0).or(untwisted_gram.as_ref().map(|u| &u.0));
-    let n = real_moment.map_or(x.nrows(), |c| c.nrows());
+    let n = match (real_moment, &y) {
+        (Some(c), _) => c.nrows(),
+        (None, Some(_)) => gcount * m,
+        (None, None) => x.nrows(),
+    };
     let blocks = isotypic_blocks(n, &ops)?;
+    // A trivial stabiliser gives one block with the identity as basis.
+    let whole = blocks.len() == 1 && ops.len() <= 1;
+    // Gram path with a stabiliser, per block: `Z = Y B` (real and imaginary
+    // parts; each column of `B` has at most `|H|` entries) and the block's
+    // Gram matrix `ZᴴZ / |H| = Bᴴ (YᴴY / |H|) B`, made from `Z` directly:
+    // `Σ_b n_b² d` instead of `n² d` for the whole Gram matrix (half for a
+    // stabiliser of two elements).
+    let block_grams: Vec<((DMatrix<f64>, DMatrix<f64>), DMatrix<Complex64>)> = match &y {
+        Some((ya, yb)) if !whole => blocks
+            .iter()
+            .map(|b| {
+                let z = b.sparse().times_parts(ya, yb);
+                let g = gram(&z.0, &z.1) * Complex64::new(1.0 / hsize, 0.0);
+                (z, g)
+            })
+            .collect(),
+        _ => Vec::new(),
+    };
     let trace: f64 = match real_moment {
         Some(c) => c.trace(),
+        None if !block_grams.is_empty() => block_grams.iter().map(|(_, g)| (0..g.nrows()).map(|i| g[(i, i)].re).sum::<f64>()).sum(),
         None => (0..n).map(|i| x[(i, i)].re).sum(),
     };
     let tol = 1e-12 * trace;
     let mut layer_energy = vec![0.0; lmax];
     let mut tail = 0.0;
-    let mut layer_vectors: Vec<Vec<DVector<Complex64>>> = vec![Vec::new(); lmax];
+    // Per block, per layer (a block's vectors are orthogonal to every other
+    // block's: they lie in different isotypic components).
+    let mut layer_vectors: Vec<Vec<Vec<DVector<Complex64>>>> = vec![vec![Vec::new(); lmax]; blocks.len()];
     let mut real_layer_vectors: Vec<Vec<DVector<f64>>> = vec![Vec::new(); lmax];
     // Per block: its eigenvectors, the kept ones by layer, and which were kept.
     let mut decompositions = Vec::with_capacity(blocks.len());
     let mut kept_count = 0;
     // The energy of the eigenvectors not kept: Σ_i (image i's discarded energy).
     let mut left_out = 0.0;
-    // A trivial stabiliser gives one block with the identity as basis.
-    let whole = blocks.len() == 1 && ops.len() <= 1;
-    for b in &blocks {
+    for (index, b) in blocks.iter().enumerate() {
         if real_moment.is_some() && !whole {
             return Err(Error::Internal(format!("fiber {:?}: a trivial stabiliser gave {} isotypic blocks", orbit.rep, blocks.len())));
         }
@@ -660,6 +689,8 @@ pub(crate) fn solve_orbit(
             Eigen { eigenvalues, eigenvectors: vectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(vectors) }
         } else if whole {
             hermitian_eigen(x.clone())
+        } else if let Some((_, g)) = block_grams.get(index) {
+            hermitian_eigen(g.clone())
         } else {
             hermitian_eigen(b.sparse().compress(&x))
         };
@@ -699,14 +730,9 @@ pub(crate) fn solve_orbit(
         left_out += (0..kept.len()).filter(|&e| !kept[e]).map(|e| eig.eigenvalues[e].max(0.0)).sum::<f64>();
         decompositions.push((eig, groups, kept));
     }
-    for (b, (eig, groups, _)) in blocks.iter().zip(&decompositions) {
-        let sparse = (!whole).then(|| b.sparse());
-        // Gram path with a block basis `B`: `Y B` once per block, in real
-        // and imaginary parts (each column of `B` has at most `|H|` entries).
-        let block_vectors = match (&y, &sparse) {
-            (Some((ya, yb)), Some(sparse)) => Some(sparse.times_parts(ya, yb)),
-            _ => None,
-        };
+    for (index, (b, (eig, groups, _))) in blocks.iter().zip(&decompositions).enumerate() {
+        let sparse = (!whole && y.is_none()).then(|| b.sparse());
+        let block_vectors = block_grams.get(index).map(|(z, _)| z);
         // One product per (block, layer): its shape does not depend on how
         // many layers are kept, so the generators for L are bit-identical to
         // the first L for L + 1.
@@ -735,7 +761,7 @@ pub(crate) fn solve_orbit(
             for col in u.column_iter() {
                 let norm = col.norm();
                 if norm > 0.0 {
-                    layer_vectors[*layer].push(col / Complex64::new(norm, 0.0));
+                    layer_vectors[index][*layer].push(col / Complex64::new(norm, 0.0));
                 }
             }
         }
@@ -743,15 +769,19 @@ pub(crate) fn solve_orbit(
     // Covariance path: the layer vectors are eigenvectors of one Hermitian
     // matrix (or an orthonormal block basis times them), orthonormal to
     // round-off already. Gram path: `Y a / ||Y a||` loses orthogonality for
-    // small eigenvalues, so the layers are orthonormalised.
+    // small eigenvalues, so the layers are orthonormalised, each block's
+    // vectors against that block's only (its own space: for two blocks of
+    // equal size, half the work of orthonormalising all of them together).
     let layers = if let Some((.., s)) = &untwisted_gram {
         // Orthonormal real vectors `z` give orthonormal `S z` (`|S| = 1`).
         let real = orthonormal_layers(real_layer_vectors, d, orbit.rep)?;
         real.iter().map(|q| DMatrix::from_fn(d, q.ncols(), |a, c| s[a] * q[(a, c)])).collect()
     } else if y.is_none() {
-        layer_vectors.into_iter().map(|cols| if cols.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&cols) }).collect()
+        let per_block = layer_vectors.into_iter().map(|layers| layers.into_iter().map(|cols| columns_matrix(&cols, d)).collect()).collect();
+        side_by_side(per_block, lmax, d)
     } else {
-        orthonormal_layers(layer_vectors, d, orbit.rep)?
+        let per_block = layer_vectors.into_iter().map(|layers| orthonormal_layers(layers, d, orbit.rep)).collect::<Result<Vec<_>>>()?;
+        side_by_side(per_block, lmax, d)
     };
     // Per-image discarded energy with all lmax layers. The images' shares
     // are non-negative and sum to the energy left out, so when that is
@@ -796,6 +826,28 @@ pub(crate) fn solve_orbit(
     };
     let image_discarded = per_image_discarded(&point_gathers, spectra, &discard);
     Ok(OrbitSolution { layer_energy, tail, layers, image_discarded })
+}
+
+/// Vectors of length `d` as the columns of a matrix (`d x 0` for none).
+fn columns_matrix(cols: &[DVector<Complex64>], d: usize) -> DMatrix<Complex64> {
+    if cols.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(cols) }
+}
+
+/// Each layer's columns from every block, block by block: `per_block[b][l]`
+/// holds block `b`'s columns of layer `l` (`d` rows).
+fn side_by_side(per_block: Vec<Vec<DMatrix<Complex64>>>, lmax: usize, d: usize) -> Vec<DMatrix<Complex64>> {
+    (0..lmax)
+        .map(|l| {
+            let parts: Vec<&DMatrix<Complex64>> = per_block.iter().map(|layers| &layers[l]).collect();
+            let mut out = DMatrix::zeros(d, parts.iter().map(|p| p.ncols()).sum());
+            let mut at = 0;
+            for p in parts {
+                out.columns_mut(at, p.ncols()).copy_from(p);
+                at += p.ncols();
+            }
+            out
+        })
+        .collect()
 }
 
 /// For a point group holding the half turn `−I` and an orbit whose
@@ -1189,15 +1241,9 @@ pub(crate) fn split(m: &DMatrix<Complex64>) -> (DMatrix<f64>, DMatrix<f64>) {
     (m.map(|z| z.re), m.map(|z| z.im))
 }
 
-/// `X Y` for complex matrices through four real matrix products
-/// `(A + iB)(C + iD) = (AC − BD) + i (AD + BC)` (the real product is the
-/// blocked, vectorised one).
-pub(crate) fn product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
-    let (a, b) = split(x);
-    product_parts(&a, &b, y)
-}
-
-/// [`product`] with the left factor already split into `(A, B)`.
+/// `X Y` for a complex `X = A + iB` given as `(A, B)`, through four real
+/// matrix products `(A + iB)(C + iD) = (AC − BD) + i (AD + BC)` (the real
+/// product is the blocked, vectorised one).
 pub(crate) fn product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
     let (c, d) = split(y);
     let mut re = matmul::mul(1.0, Part::of(a), Part::of(&c));
@@ -1207,7 +1253,7 @@ pub(crate) fn product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMatrix<Comp
     re.zip_map(&im, Complex64::new)
 }
 
-/// [`adjoint_product`] with the left factor already split into `(A, B)`.
+/// `Xᴴ Y` for `X = A + iB` given as `(A, B)` (see [`product_parts`]).
 pub(crate) fn adjoint_product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
     let (c, d) = split(y);
     let mut re = matmul::mul(1.0, Part::of(a).t(), Part::of(&c));
@@ -1215,12 +1261,6 @@ pub(crate) fn adjoint_product_parts(a: &DMatrix<f64>, b: &DMatrix<f64>, y: &DMat
     let mut im = matmul::mul(1.0, Part::of(a).t(), Part::of(&d));
     matmul::into(&mut im, (0, 0), true, -1.0, Part::of(b).t(), Part::of(&c));
     re.zip_map(&im, Complex64::new)
-}
-
-/// `Xᴴ Y` through real matrix products (see [`product`]).
-pub(crate) fn adjoint_product(x: &DMatrix<Complex64>, y: &DMatrix<Complex64>) -> DMatrix<Complex64> {
-    let (a, b) = split(x);
-    adjoint_product_parts(&a, &b, y)
 }
 
 #[cfg(test)]
