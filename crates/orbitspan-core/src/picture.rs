@@ -28,14 +28,102 @@ fn percentile(values: &mut [f64], p: f64) -> Option<f64> {
     }
     let h = (values.len() - 1) as f64 * p / 100.0;
     let k = h.floor() as usize;
-    let (_, &mut below, above) = values.select_nth_unstable_by(k, f64::total_cmp);
-    let next = above.iter().copied().min_by(f64::total_cmp).unwrap_or(below);
-    Some(below + (h - k as f64) * (next - below))
+    percentile_at_rank(values, k, h - k as f64)
 }
 
-/// The finite pixel values of `image`.
-fn finite_values(image: &Image) -> Vec<f64> {
-    image.pixels.iter().copied().filter(|v| v.is_finite()).collect()
+/// Values from which [`percentile_of`] samples (below it selects among all).
+const SAMPLED_FROM: usize = 1 << 16;
+/// Size of [`percentile_of`]'s sample.
+const SAMPLE: usize = 1 << 14;
+
+/// [`percentile`] of `values` (not reordered), the same number, without a
+/// selection among all of them: the two order statistics it interpolates,
+/// of ranks `k` and `k + 1`, lie in a window `[a, b]` of values whose ends
+/// are order statistics of a pseudo-random sample of `SAMPLE` values, `SPREAD`
+/// standard deviations of the sample rank (at most `√SAMPLE / 2`) either
+/// side of rank `k`'s expected place in it. One pass counts the values
+/// below `a` and collects those in the window (about 5% of them); rank
+/// `k` overall is then rank `k − below` among those. When the window misses
+/// a rank (the sample was unlucky) or there are few values, the selection
+/// among all. Values are ordered by `total_cmp`, as in [`percentile`], so
+/// ties and signed zeros fall the same way. On a 1024 x 1024 picture about
+/// 3 times faster here (one run).
+fn percentile_of(values: &[f64], p: f64) -> Option<f64> {
+    match values.len() < SAMPLED_FROM {
+        true => percentile(&mut values.to_vec(), p),
+        false => windowed_percentile(values, p, SAMPLE, SPREAD).0,
+    }
+}
+
+/// Half-width of [`percentile_of`]'s window in standard deviations of the
+/// sample rank.
+const SPREAD: f64 = 6.0;
+
+/// [`percentile_of`]'s way with a sample of `sample` values and a window
+/// `spread` standard deviations (`√sample / 2`) either side, plus two
+/// sample ranks; also says whether the window held both ranks (else the
+/// selection among all gave the value).
+fn windowed_percentile(values: &[f64], p: f64, sample: usize, spread: f64) -> (Option<f64>, bool) {
+    let n = values.len();
+    if n == 0 || sample == 0 {
+        return (percentile(&mut values.to_vec(), p), false);
+    }
+    let h = (n - 1) as f64 * p / 100.0;
+    let k = h.floor() as usize;
+    let mut rng = crate::prng::SplitMix64(0x00b1_75a9);
+    let mut drawn: Vec<f64> = (0..sample).map(|_| values[(rng.next_u64() % n as u64) as usize]).collect();
+    let centre = (k as f64 + 0.5) * sample as f64 / n as f64;
+    let margin = spread * (sample as f64).sqrt() / 2.0 + 2.0;
+    let mut end = |rank: f64| -> Option<f64> {
+        (rank >= 0.0 && rank < sample as f64).then(|| *drawn.select_nth_unstable_by(rank as usize, f64::total_cmp).1)
+    };
+    let (a, b) = (end((centre - margin).floor()), end((centre + margin).ceil()));
+    match percentile_in_window(values, p, a, b) {
+        Some(v) => (Some(v), true),
+        None => (percentile(&mut values.to_vec(), p), false),
+    }
+}
+
+/// [`percentile`] of the non-empty `values` from those in the window
+/// `[a, b]` (`None`: unbounded on that side) and the count of those below
+/// `a`, or `None` when the window does not hold both ranks it interpolates.
+fn percentile_in_window(values: &[f64], p: f64, a: Option<f64>, b: Option<f64>) -> Option<f64> {
+    use std::cmp::Ordering::{Greater, Less};
+    let n = values.len();
+    let h = (n - 1) as f64 * p / 100.0;
+    let k = h.floor() as usize;
+    let mut below = 0;
+    let mut window = Vec::new();
+    for &v in values {
+        if a.is_some_and(|a| v.total_cmp(&a) == Less) {
+            below += 1;
+        } else if b.is_none_or(|b| v.total_cmp(&b) != Greater) {
+            window.push(v);
+        }
+    }
+    // Rank k + 1 is needed unless k is the last rank.
+    let needed = if k + 1 < n { k + 2 } else { k + 1 };
+    if below > k || below + window.len() < needed {
+        return None;
+    }
+    percentile_at_rank(&mut window, k - below, h - k as f64)
+}
+
+/// `below + frac (next − below)` for the order statistics of ranks `k` and
+/// `k + 1` of `values` (`next = below` when `k` is the last): the
+/// interpolation of [`percentile`]. Reorders `values`.
+fn percentile_at_rank(values: &mut [f64], k: usize, frac: f64) -> Option<f64> {
+    let (_, &mut below, above) = values.select_nth_unstable_by(k, f64::total_cmp);
+    let next = above.iter().copied().min_by(f64::total_cmp).unwrap_or(below);
+    Some(below + frac * (next - below))
+}
+
+/// The finite pixel values of `image` (the pixels themselves when all are).
+fn finite_values(image: &Image) -> std::borrow::Cow<'_, [f64]> {
+    match image.pixels.iter().all(|v| v.is_finite()) {
+        true => std::borrow::Cow::Borrowed(&image.pixels),
+        false => std::borrow::Cow::Owned(image.pixels.iter().copied().filter(|v| v.is_finite()).collect()),
+    }
 }
 
 /// Grey picture with an automatic contrast stretch: the 0.5th percentile
@@ -44,9 +132,9 @@ fn finite_values(image: &Image) -> Vec<f64> {
 /// image (`hi = lo`) is mid grey 128; non-finite pixels are black and are
 /// left out of the percentiles.
 pub fn grey_rgba(image: &Image) -> Vec<u8> {
-    let mut values = finite_values(image);
-    let lo = percentile(&mut values, STRETCH_LOW);
-    let hi = percentile(&mut values, STRETCH_HIGH);
+    let values = finite_values(image);
+    let lo = percentile_of(&values, STRETCH_LOW);
+    let hi = percentile_of(&values, STRETCH_HIGH);
     let range = match (lo, hi) {
         (Some(lo), Some(hi)) if hi > lo => Some((lo, hi - lo)),
         _ => None,
@@ -79,8 +167,8 @@ fn round_unit(x: f64) -> u8 {
 /// sampled in 255 steps per side). If `s = 0` every non-zero pixel gets the
 /// full colour of its sign. Non-finite pixels are white.
 pub fn diverging_rgba(image: &Image) -> Vec<u8> {
-    let mut magnitudes: Vec<f64> = finite_values(image).iter().map(|v| v.abs()).collect();
-    let scale = percentile(&mut magnitudes, STRETCH_HIGH).unwrap_or(0.0);
+    let magnitudes: Vec<f64> = finite_values(image).iter().map(|v| v.abs()).collect();
+    let scale = percentile_of(&magnitudes, STRETCH_HIGH).unwrap_or(0.0);
     let negative = colour_ramp(NEGATIVE_END);
     let positive = colour_ramp(POSITIVE_END);
     let mut out = vec![255; 4 * image.pixels.len()];
@@ -204,6 +292,70 @@ mod tests {
             assert!((got - want).abs() < 1e-12, "p{p}: {got}");
         }
         assert_eq!(percentile(&mut [], 50.0), None);
+    }
+
+    /// The windowed percentile is the selection among all, bit for bit, on
+    /// normal noise, heavy ties, a periodic pattern, signed zeros, sorted
+    /// and constant values; with the default sample the window holds the
+    /// ranks on the noise, and tiny samples (windows that miss) still give
+    /// the same numbers.
+    #[test]
+    fn windowed_percentile_equals_the_selection_among_all() {
+        let mut rng = crate::prng::SplitMix64(11);
+        let n = 3 * SAMPLED_FROM + 17;
+        let noise: Vec<f64> = (0..n).map(|_| rng.normal()).collect();
+        let ties: Vec<f64> = (0..n).map(|_| (rng.next_u64() % 5) as f64).collect();
+        let periodic: Vec<f64> = (0..n).map(|i| ((i % 64) as f64 * 0.3).sin()).collect();
+        let zeros: Vec<f64> = (0..n).map(|i| [0.0, -0.0, 1.0, -1.0][(i * 7 + i / 3) % 4]).collect();
+        let sorted: Vec<f64> = (0..n).map(|i| i as f64 / 7.0).collect();
+        let constant = vec![2.5; n];
+        for (name, values) in [("noise", &noise), ("ties", &ties), ("periodic", &periodic), ("zeros", &zeros), ("sorted", &sorted), ("constant", &constant)] {
+            for p in [0.0, 0.5, 37.2, 50.0, 99.5, 100.0] {
+                let want = percentile(&mut values.clone(), p).unwrap();
+                let (got, windowed) = windowed_percentile(values, p, SAMPLE, SPREAD);
+                assert_eq!(got.map(f64::to_bits), Some(want.to_bits()), "{name} p{p}: {got:?} vs {want}");
+                if name == "noise" {
+                    assert!(windowed, "{name} p{p}: the window missed");
+                }
+                // Tiny samples and narrow windows: ranks at the window's
+                // edges, and misses.
+                for (sample, spread) in [(1, SPREAD), (3, SPREAD), (SAMPLE, 0.0), (SAMPLE, 0.3), (4096, 0.0)] {
+                    let (got, _) = windowed_percentile(values, p, sample, spread);
+                    assert_eq!(got.map(f64::to_bits), Some(want.to_bits()), "{name} p{p} sample {sample} spread {spread}");
+                }
+            }
+        }
+        assert_eq!(windowed_percentile(&[], 50.0, SAMPLE, SPREAD).0, None);
+        assert_eq!(percentile_of(&noise, 99.5), percentile(&mut noise.clone(), 99.5));
+    }
+
+    /// Every window of a small array with ties and signed zeros: either it
+    /// misses (and says so) or gives the selection's number bit for bit, and
+    /// it holds the ranks exactly when its ends bracket them.
+    #[test]
+    fn every_window_gives_the_percentile_or_says_it_missed() {
+        let mut rng = crate::prng::SplitMix64(5);
+        let values: Vec<f64> = (0..23).map(|_| [3.0, -1.0, 0.0, -0.0, 2.0, 3.0, 7.5][(rng.next_u64() % 7) as usize]).collect();
+        let mut ends: Vec<Option<f64>> = values.iter().map(|&v| Some(v)).collect();
+        ends.push(None);
+        let mut sorted = values.clone();
+        sorted.sort_by(f64::total_cmp);
+        for p in (0..=40).map(|i| i as f64 * 2.5) {
+            let want = percentile(&mut values.clone(), p).unwrap();
+            let h = (values.len() - 1) as f64 * p / 100.0;
+            let k = h.floor() as usize;
+            let (low, high) = (sorted[k], sorted[(k + 1).min(values.len() - 1)]);
+            for &a in &ends {
+                for &b in &ends {
+                    let got = percentile_in_window(&values, p, a, b);
+                    let holds = a.is_none_or(|a| a.total_cmp(&low).is_le()) && b.is_none_or(|b| b.total_cmp(&high).is_ge());
+                    assert_eq!(got.is_some(), holds, "p{p} window {a:?}..{b:?}");
+                    if let Some(got) = got {
+                        assert_eq!(got.to_bits(), want.to_bits(), "p{p} window {a:?}..{b:?}");
+                    }
+                }
+            }
+        }
     }
 
     #[test]
