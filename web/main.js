@@ -314,7 +314,7 @@ async function runFit() {
     });
     state.fit = { report: result.report, seconds: result.seconds };
     state.model = { info: result.model, source: 'fit' };
-    state.modelBytes = result.modelBytes;
+    forgetModelBytes();
     state.generators = result.generators;
     state.chosen = result.model.generators;
     state.latticeFit = result.lattice;
@@ -324,7 +324,9 @@ async function runFit() {
     }
     state.errors = { rows: result.report.images, caption: errorsCaption(state.chosen) };
     state.modelStatus = result.lattice ? latticeModelNote(result.model) : null;
-    client.remember('open-model', { name: 'fit', bytes: result.modelBytes.slice().buffer });
+    // The model survives a worker restart as its record and generator
+    // values (the arrays the pictures already hold; copied only if replayed).
+    client.remember('restore-model', { record: result.record, generators: result.generators.map((g) => g.values) });
     if (result.lattice) client.remember('restore-lattice', { info: result.lattice });
     client.remember('restore-report', { report: result.report });
     state.busy = null;
@@ -334,6 +336,7 @@ async function runFit() {
     cards.symmetry.open = false;
     cards.results.open = true;
     await refreshPictures();
+    fetchModelBytes();
   } catch (error) {
     if (error.name === 'Cancelled') return;
     state.busy = null;
@@ -367,7 +370,7 @@ async function chooseGenerators(count) {
     const result = await client.request('choose', { count });
     client.remember('choose', { count });
     state.model = { info: result.model, source: 'fit' };
-    state.modelBytes = result.modelBytes;
+    forgetModelBytes();
     state.chosen = count;
     const full = state.fit.report.error_curve.length;
     if (count === full) {
@@ -385,9 +388,40 @@ async function chooseGenerators(count) {
   }
   state.busy = null;
   await refreshPictures();
+  if (state.model?.source === 'fit') fetchModelBytes();
 }
 
 // ---- models ---------------------------------------------------------------
+
+// The current model's file (state.modelBytes) for a fit is asked for once its
+// results are drawn, not with them: writing it checksums every byte, which on
+// a large model takes about as long as making the generator pictures.
+let modelBytesRequest = null;
+
+function fetchModelBytes() {
+  if (modelBytesRequest) return modelBytesRequest;
+  const request = client.request('model-bytes').then(
+    (result) => {
+      if (modelBytesRequest === request) state.modelBytes = result.bytes;
+    },
+    (error) => {
+      if (error.name === 'Cancelled' || modelBytesRequest !== request) return;
+      state.modelStatus = `The model file could not be made: ${describeError(error)}`;
+      state.modelStatusIsProblem = true;
+      render();
+    },
+  ).finally(() => {
+    if (modelBytesRequest === request) modelBytesRequest = null;
+  });
+  modelBytesRequest = request;
+  return request;
+}
+
+// The model changed: its file is made again when needed.
+function forgetModelBytes() {
+  state.modelBytes = null;
+  modelBytesRequest = null;
+}
 
 async function openModel(file) {
   state.busy = 'model';
@@ -398,6 +432,7 @@ async function openModel(file) {
     client.remember('open-model', { name, bytes });
     state.model = { info: result.model, source: name };
     state.latticeFit = null;
+    forgetModelBytes();
     state.modelBytes = new Uint8Array(bytes);
     state.generators = result.generators;
     state.chosen = result.model.generators;
@@ -500,7 +535,8 @@ function chooseGroup(name) {
   settingsChanged();
 }
 
-function saveModel() {
+async function saveModel() {
+  if (!state.modelBytes && state.model?.source === 'fit') await fetchModelBytes();
   if (state.modelBytes) downloadFile(modelFileName(), state.modelBytes);
 }
 

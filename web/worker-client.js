@@ -82,12 +82,14 @@ export class WorkerClient {
 
   // Remembers a request that changed the worker's state, to replay after a
   // restart. A request that replaces earlier state makes those forgotten:
-  // 'clear' the images, 'open-model' the model (and its lattice),
-  // 'restore-report' the report.
+  // 'clear' the images, 'open-model' and 'restore-model' the model (and its
+  // lattice), 'restore-report' the report.
   remember(op, args = {}) {
+    const model = ['open-model', 'restore-model', 'choose', 'restore-lattice'];
     const replaces = {
       clear: ['add-files', 'add-example', 'remove-image', 'clear'],
-      'open-model': ['open-model', 'choose', 'restore-lattice'],
+      'open-model': model,
+      'restore-model': model,
       choose: ['choose'],
       'restore-report': ['restore-report'],
     }[op] ?? [];

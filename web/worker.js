@@ -32,7 +32,7 @@
 //   survey         options: { lattice,          { lattice, generators, groups: [{ group, cell, order,
 //                  samples, generators }          cell_deviation, noise_level, consistent, deviation,
 //                                                 centre, relative_error }] }, ranked (best first)
-//   fit            settings                     { report, generators: [picture], model, modelBytes, seconds,
+//   fit            settings                     { report, generators: [picture], model, record, seconds,
 //                                                 lattice: null | { lattice, grid, resampling_error,
 //                                                 image_deviation, cell_deviation, noise_level },
 //                                                 workers, solvedBy: null | [tasks solved here, by helper 1, ...],
@@ -40,7 +40,10 @@
 //                                                 tasks, after them, and solving them summed over workers }
 //   restore-report report                       null (the report of an earlier fit, after a restart)
 //   restore-lattice info                        null (the lattice of an earlier fit's model, after a restart)
-//   choose         count                        { model, modelBytes }
+//   choose         count                        { model }
+//   model-bytes    -                            { bytes } the current model's file (.orbitspan-model)
+//   restore-model  record, generators:          { model } (a fit's model after a restart, from the fit's
+//                  [Float64Array]                 record and its generator pictures' values)
 //   pictures       index                        { original, fitted, residual, problem }
 //   open-model     name, bytes                  { model, generators: [picture] }
 //   apply          -                            { errors: [{ file, energy, error, relative_error }], seconds }
@@ -52,7 +55,8 @@
 //   helpers        ports: [MessagePort]         { helpers } (sent by the page at start: channels to helpers)
 //   serve          port: MessagePort            null (sent by the page at start: become a helper)
 // where images = [{ label, height, width }] is the whole stack after the
-// change and model = { settings, height, width, generators, grid }; grid is
+// change, record is the fit's model without its generators (text, for
+// restore-model) and model = { settings, height, width, generators, grid }; grid is
 // null, or { samples, cells } when the model is on a measured lattice's grid
 // (then the report's errors are on that grid, pictures are mapped back to the
 // pixels, and an export also holds lattice.json and residual-pixels-NNN.png).
@@ -167,7 +171,7 @@ async function run(op, m, progress) {
       const seconds = (performance.now() - start) / 1000;
       return {
         report, seconds, workers: helpers.length + 1, solvedBy, timing,
-        generators: session.generatorPictures(), model: session.modelInfo(), modelBytes: session.modelBytes(),
+        generators: session.generatorPictures(), model: session.modelInfo(), record: session.modelRecord(),
         lattice: session.latticeFit(),
       };
     }
@@ -178,7 +182,11 @@ async function run(op, m, progress) {
       session.restoreLatticeFit(m.info);
       return null;
     case 'choose':
-      return { model: session.chooseGenerators(m.count), modelBytes: session.modelBytes() };
+      return { model: session.chooseGenerators(m.count) };
+    case 'model-bytes':
+      return { bytes: session.modelBytes() };
+    case 'restore-model':
+      return { model: session.restoreModel(m.record, m.generators) };
     case 'pictures':
       return session.pictures(m.index);
     case 'open-model': {

@@ -26,7 +26,7 @@ async function fitBothWays(page, example, settingsPatch) {
         workers: result.workers,
         solvedBy: result.solvedBy,
         generators: result.generators.map((g) => Array.from(g.values)),
-        model: Array.from(result.modelBytes),
+        model: Array.from((await client.request('model-bytes')).bytes),
         stages: [...stages],
         helperMemory: memory.helpers,
       };

@@ -3,7 +3,7 @@
 use crate::js_values::{error, from_js, picture, picture_with_values, set, to_js};
 use crate::measured_lattice::{measured_of, LatticeFit, LatticeReport, Measured};
 use crate::page_settings::{LatticeChoice, PageSettings};
-use js_sys::{Array, Function, Object, Uint8Array};
+use js_sys::{Array, Float64Array, Function, Object, Uint8Array};
 use orbitspan_core::image_io::{self, DecodeLimits};
 use orbitspan_core::lattice_detect::{self, DetectOptions, Detection};
 use orbitspan_core::plane_group::{GroupSymbol, PlaneGroup, Setting};
@@ -15,6 +15,14 @@ use orbitspan_core::{demo, fit, npy, picture as pictures, Error, FitSettings, Im
 use wasm_bindgen::prelude::*;
 
 type JsResult<T> = Result<T, JsValue>;
+
+/// What [`Session::model_record`] writes: a model without its generators.
+#[derive(serde::Serialize, serde::Deserialize)]
+struct ModelRecord {
+    settings: FitSettings,
+    height: usize,
+    width: usize,
+}
 
 /// The stack, the last fit's report and the current model.
 #[wasm_bindgen]
@@ -654,6 +662,47 @@ impl Session {
     #[wasm_bindgen(js_name = modelBytes)]
     pub fn model_bytes(&self) -> JsResult<Uint8Array> {
         Ok(Uint8Array::from(self.current_model()?.to_bytes().as_slice()))
+    }
+
+    /// The full model's settings and size as JSON text, opaque to the page.
+    /// With the generator values of [`Session::generator_pictures`] it is
+    /// all [`Session::restore_model`] needs to make the model again, so the
+    /// page keeps a fit's model across a worker restart without the model
+    /// file (whose checksum, one pass over every byte, is what makes writing
+    /// it slow); the file is made only when it is asked for.
+    #[wasm_bindgen(js_name = modelRecord)]
+    pub fn model_record(&self) -> JsResult<String> {
+        let model = self.full_model()?;
+        let record = ModelRecord { settings: model.settings().clone(), height: model.height(), width: model.width() };
+        serde_json::to_string(&record).map_err(|e| error(Error::Internal(format!("model record: {e}"))))
+    }
+
+    /// Makes the model of a [`Session::model_record`] and its generators'
+    /// values (`Float64Array`s, row-major, as in the generator pictures)
+    /// the current model, as opening its file would: the last fit's report
+    /// is kept, a chosen count and a measured lattice are not. Returns the
+    /// model's `{ settings, height, width, generators, grid }`.
+    #[wasm_bindgen(js_name = restoreModel)]
+    pub fn restore_model(&mut self, record: &str, generators: Array) -> JsResult<JsValue> {
+        let bad = |what: String| error(Error::input(format!("restoring the model: {what}")));
+        let record: ModelRecord = serde_json::from_str(record).map_err(|e| bad(format!("its record is not valid ({e})")))?;
+        let (height, width) = (record.height, record.width);
+        let images = generators
+            .iter()
+            .enumerate()
+            .map(|(i, value)| {
+                let values = value.dyn_into::<Float64Array>().map_err(|_| bad(format!("generator {} is not a Float64Array", i + 1)))?;
+                if values.length() as usize != height * width {
+                    return Err(bad(format!("generator {} has {} values, not {height}x{width}", i + 1, values.length())));
+                }
+                Ok(Image { height, width, pixels: values.to_vec() })
+            })
+            .collect::<JsResult<Vec<Image>>>()?;
+        let model = Model::new(record.settings, height, width, images).map_err(error)?;
+        self.model = Some(model);
+        self.chosen = None;
+        self.lattice_fit = None;
+        self.model_info()
     }
 
     /// Opens a model file; it becomes the current model (the last fit's

@@ -222,6 +222,40 @@ fn a_saved_model_applied_in_a_new_session_gives_the_fits_errors() {
     assert!(message.contains("broken.orbitspan-model"), "{message}");
 }
 
+/// What the page keeps of a fit for a worker restart (the model's record
+/// and its generator pictures' values) makes the same model: its file is
+/// byte for byte the fit's, and restoring drops a chosen count.
+#[wasm_bindgen_test]
+fn a_fits_record_and_generator_values_restore_its_model() {
+    let mut session = session_with_tiny_stack();
+    session.fit(js(&page_settings("p4", 4, 4, 3)), &keep_going()).unwrap();
+    let bytes = session.model_bytes().unwrap().to_vec();
+    let record = session.model_record().unwrap();
+    let values: Array = session.generator_pictures().unwrap().iter().map(|p| get(&p, "values")).collect();
+    assert_eq!(values.length(), 3);
+
+    let mut fresh = session_with_tiny_stack();
+    fresh.fit(js(&page_settings("p2", 4, 4, 2)), &keep_going()).unwrap();
+    fresh.choose_generators(1).unwrap();
+    let info = fresh.restore_model(&record, values.clone()).unwrap();
+    assert_eq!(get(&info, "generators").as_f64(), Some(3.0));
+    assert_eq!(fresh.model_bytes().unwrap().to_vec(), bytes);
+
+    // Bad input is refused and says what is wrong; the model stays.
+    let short: Array = values.iter().collect();
+    short.set(1, js_sys::Float64Array::new_with_length(5).into());
+    let (name, message) = error_name_and_message(&fresh.restore_model(&record, short).unwrap_err());
+    assert_eq!(name, "BadInput");
+    assert!(message.contains("generator 2 has 5 values"), "{message}");
+    let (name, message) = error_name_and_message(&fresh.restore_model("{}", values.clone()).unwrap_err());
+    assert_eq!(name, "BadInput");
+    assert!(message.contains("record"), "{message}");
+    let two: Array = values.iter().take(2).collect();
+    let (_, message) = error_name_and_message(&fresh.restore_model(&record, two).unwrap_err());
+    assert!(message.contains("2 generator images but its settings say 3"), "{message}");
+    assert_eq!(fresh.model_bytes().unwrap().to_vec(), bytes);
+}
+
 #[wasm_bindgen_test]
 fn fewer_chosen_generators_give_that_point_of_the_curve() {
     let mut session = session_with_tiny_stack();
