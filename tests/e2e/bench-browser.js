@@ -7,8 +7,9 @@
 // interleaved: one worker alone, and one worker per core (the page's
 // default: the fit's tasks spread over helper workers), with the spread
 // fit's own breakdown (before the tasks, after them, the tasks' work summed
-// over workers). The workers' wasm memory sizes after the fits are their
-// peaks. Writes DIR/browser.json for orbitspan-bench --browser DIR, which
+// over workers). After each one-worker fit the page's next requests are
+// timed too: the first image's pictures and the model file. The workers'
+// wasm memory sizes after all that are their peaks. Writes DIR/browser.json for orbitspan-bench --browser DIR, which
 // times the native fit of the same decoded files.
 //
 //   node tests/e2e/bench-browser.js DIR [--reps N]
@@ -63,11 +64,22 @@ for (const name of readdirSync(dir).sort()) {
       const pageSeconds = [];
       const spreadSeconds = [];
       const spreadTiming = [];
+      const pictureSeconds = [];
+      const modelFileSeconds = [];
+      const since = (start) => (performance.now() - start) / 1000;
       for (let i = 0; i < reps; i++) {
         const start = performance.now();
         const result = await client.request('fit', { settings: description.settings });
-        pageSeconds.push((performance.now() - start) / 1000);
+        pageSeconds.push(since(start));
         worker.push(result.seconds);
+        // What the page asks for next: the first image's pictures (original,
+        // fitted, residual), then the model file.
+        const picturesStart = performance.now();
+        await client.request('pictures', { index: 0 });
+        pictureSeconds.push(since(picturesStart));
+        const fileStart = performance.now();
+        await client.request('model-bytes');
+        modelFileSeconds.push(since(fileStart));
         if (spread) {
           const wide = await spread.request('fit', { settings: description.settings });
           if (JSON.stringify(wide.report) !== JSON.stringify(result.report)) return { error: 'the spread fit differs from the fit in one worker' };
@@ -78,7 +90,7 @@ for (const name of readdirSync(dir).sort()) {
       const memory = await client.request('memory');
       const spreadMemory = spread ? await spread.request('memory') : null;
       return {
-        images: added.images.length, worker, pageSeconds, memory: memory.bytes,
+        images: added.images.length, worker, pageSeconds, pictureSeconds, modelFileSeconds, memory: memory.bytes,
         workers, spreadSeconds, spreadTiming,
         spreadMemory: spreadMemory ? spreadMemory.bytes + spreadMemory.helpers.reduce((a, b) => a + b, 0) : 0,
       };
@@ -90,6 +102,7 @@ for (const name of readdirSync(dir).sort()) {
       + `${outcome.workers} workers ${outcome.spreadSeconds.map((s) => s.toFixed(3)).join(' ')} s`);
     results.push({
       name, images: outcome.images, worker_seconds: outcome.worker, page_seconds: outcome.pageSeconds,
+      picture_seconds: outcome.pictureSeconds, model_file_seconds: outcome.modelFileSeconds,
       wasm_memory_bytes: outcome.memory,
       workers: outcome.workers, spread_seconds: outcome.spreadSeconds, spread_timing: outcome.spreadTiming,
       spread_memory_bytes: outcome.spreadMemory,

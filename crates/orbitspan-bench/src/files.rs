@@ -43,6 +43,12 @@ pub struct BrowserTiming {
     pub worker_seconds: Vec<f64>,
     /// Seconds from posting the request to its result, in the page.
     pub page_seconds: Vec<f64>,
+    /// After each fit, seconds of the first image's pictures request.
+    #[serde(default)]
+    pub picture_seconds: Vec<f64>,
+    /// After each fit, seconds of the model file request.
+    #[serde(default)]
+    pub model_file_seconds: Vec<f64>,
     /// The worker's wasm memory after the fits (it only grows: a peak).
     pub wasm_memory_bytes: usize,
     /// Workers of the spread fit (one per core; 1: not measured).

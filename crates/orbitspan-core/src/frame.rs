@@ -539,7 +539,7 @@ pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>]
     let count = spectra.len();
     let work = |k: usize, spectra: &[Vec<Complex64>]| -> Vec<(Gather, DMatrix<Complex64>)> {
         let orbit = &orbits[k];
-        let w = fiber_matrix(sym, orbit.rep, &gens);
+        let (wa, wb) = split(&fiber_matrix(sym, orbit.rep, &gens));
         let mut out = Vec::with_capacity(orbit.points.len());
         for &(_, op) in &orbit.points {
             let gather = sym.gather(orbit.rep, op);
@@ -547,7 +547,6 @@ pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>]
             for (i, s) in spectra.iter().enumerate() {
                 gather.apply_into(s, x.column_mut(i).as_mut_slice());
             }
-            let (wa, wb) = split(&w);
             let y = product_parts(&wa, &wb, &adjoint_product_parts(&wa, &wb, &x)) * Complex64::new(1.0 / d, 0.0);
             out.push((gather, y));
         }

@@ -15,7 +15,7 @@
 
 use crate::error::{Error, Result};
 use crate::fiber::Symmetry;
-use crate::fit::{check, from_group_frame, group_frame_spectrum, ratio, validate};
+use crate::fit::{check, from_group_frame, group_frame_spectra, group_frame_spectrum, ratio, validate};
 use crate::frame::frame_project;
 use crate::progress::Progress;
 use crate::report::ImageError;
@@ -133,10 +133,7 @@ impl Model {
     fn project_batch(&self, images: &[&Image]) -> Vec<Image> {
         let origin = self.settings.origin;
         let mut spectra: Vec<Vec<Complex64>> = images.iter().map(|img| group_frame_spectrum(img, origin)).collect();
-        let generator_spectra = self.spectra.get_or_init(|| {
-            let origin = self.settings.origin;
-            self.generators.iter().map(|g| group_frame_spectrum(g, origin)).collect()
-        });
+        let generator_spectra = self.spectra.get_or_init(|| group_frame_spectra(&self.generators, self.settings.origin));
         frame_project(&self.symmetry, generator_spectra, &mut spectra);
         spectra
             .iter()
