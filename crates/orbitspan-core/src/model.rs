@@ -116,6 +116,13 @@ impl Model {
         &self.generators
     }
 
+    /// Drops the generators' spectra made for projections (made again when
+    /// next needed): twice the generators' size, which a caller keeping
+    /// this model while it fits a new one need not hold meanwhile.
+    pub fn forget_spectra(&mut self) {
+        self.spectra = std::sync::OnceLock::new();
+    }
+
     fn check_size(&self, label: &str, img: &Image) -> Result<()> {
         if img.height != self.height || img.width != self.width {
             return Err(Error::file(
@@ -251,6 +258,31 @@ mod tests {
     /// "foobar" → 85944171f73967e8; values from memory, and recomputed here
     /// by a separate three-line Python implementation), and fed in pieces
     /// as [`Model::to_bytes`] feeds it.
+    /// Projections make the generators' spectra once and keep them;
+    /// forgetting them drops them, and the next projection, making them
+    /// again, gives the same image.
+    #[test]
+    fn forgotten_spectra_are_made_again() {
+        let settings = FitSettings {
+            group: crate::plane_group::PlaneGroup::parse("p2").unwrap(),
+            cell_rows: 2,
+            cell_cols: 2,
+            origin: [0, 0],
+            generators: 1,
+            band: None,
+            lattice_coords: false,
+        };
+        let generator = Image::new(4, 4, (0..16).map(|i| ((i * 5) % 7) as f64 / 7.0).collect());
+        let mut model = Model::new(settings, 4, 4, vec![generator]).unwrap();
+        let image = Image::new(4, 4, (0..16).map(|i| ((i * 3) % 11) as f64).collect());
+        assert!(model.spectra.get().is_none());
+        let first = model.project(&image).unwrap();
+        assert!(model.spectra.get().is_some());
+        model.forget_spectra();
+        assert!(model.spectra.get().is_none());
+        assert_eq!(model.project(&image).unwrap().pixels, first.pixels);
+    }
+
     #[test]
     fn checksum_is_fnv1a64() {
         for (text, want) in [("", 0xcbf2_9ce4_8422_2325u64), ("a", 0xaf63_dc4c_8601_ec8c), ("foobar", 0x8594_4171_f739_67e8)] {

@@ -480,6 +480,11 @@ impl Session {
             Some(choice) => Some(self.measure(choice).map_err(error)?),
             None => None,
         };
+        // The current model stays until the new fit is done (a failed fit
+        // loses nothing), but not its spectra made for pictures.
+        for model in self.model.iter_mut().chain(self.chosen.iter_mut()) {
+            model.forget_spectra();
+        }
         Ok((page, settings, measured))
     }
 
