@@ -399,6 +399,7 @@ async function chooseGenerators(count) {
 let modelBytesRequest = null;
 
 function fetchModelBytes() {
+  if (state.modelBytes) return Promise.resolve();
   if (modelBytesRequest) return modelBytesRequest;
   const request = client.request('model-bytes').then(
     (result) => {

@@ -9,8 +9,9 @@
 // fit's own breakdown (before the tasks, after them, the tasks' work summed
 // over workers). After each one-worker fit the page's next requests are
 // timed too: the first image's pictures and the model file. The workers'
-// wasm memory sizes after all that are their peaks. Writes DIR/browser.json for orbitspan-bench --browser DIR, which
-// times the native fit of the same decoded files.
+// wasm memory sizes after all that are their peaks. Writes
+// DIR/browser.json for orbitspan-bench --browser DIR, which times the
+// native fit of the same decoded files.
 //
 //   node tests/e2e/bench-browser.js DIR [--reps N]
 //

@@ -253,11 +253,6 @@ impl Model {
 mod tests {
     use super::*;
 
-    /// FNV-1a 64 against the published test vectors of its authors
-    /// (Fowler, Noll, Vo: "" → cbf29ce484222325, "a" → af63dc4c8601ec8c,
-    /// "foobar" → 85944171f73967e8; values from memory, and recomputed here
-    /// by a separate three-line Python implementation), and fed in pieces
-    /// as [`Model::to_bytes`] feeds it.
     /// Projections make the generators' spectra once and keep them;
     /// forgetting them drops them, and the next projection, making them
     /// again, gives the same image.
@@ -283,6 +278,11 @@ mod tests {
         assert_eq!(model.project(&image).unwrap().pixels, first.pixels);
     }
 
+    /// FNV-1a 64 against the published test vectors of its authors
+    /// (Fowler, Noll, Vo: "" → cbf29ce484222325, "a" → af63dc4c8601ec8c,
+    /// "foobar" → 85944171f73967e8; values from memory, and recomputed here
+    /// by a separate three-line Python implementation), and fed in pieces
+    /// as [`Model::to_bytes`] feeds it.
     #[test]
     fn checksum_is_fnv1a64() {
         for (text, want) in [("", 0xcbf2_9ce4_8422_2325u64), ("a", 0xaf63_dc4c_8601_ec8c), ("foobar", 0x8594_4171_f739_67e8)] {

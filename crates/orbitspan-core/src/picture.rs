@@ -84,9 +84,10 @@ fn windowed_percentile(values: &[f64], p: f64, sample: usize, spread: f64) -> (O
     }
 }
 
-/// [`percentile`] of the non-empty `values` from those in the window
-/// `[a, b]` (`None`: unbounded on that side) and the count of those below
-/// `a`, or `None` when the window does not hold both ranks it interpolates.
+/// [`percentile`] of the non-empty `values`, from the count of those below
+/// `a` and a selection among those in the window `[a, b]` (`None`: no
+/// bound on that side); `None` when the window does not hold both ranks
+/// it interpolates.
 fn percentile_in_window(values: &[f64], p: f64, a: Option<f64>, b: Option<f64>) -> Option<f64> {
     use std::cmp::Ordering::{Greater, Less};
     let n = values.len();
