@@ -528,8 +528,9 @@ fn gathered_matrix(gathers: &[Gather], spectra: &[&[Complex64]]) -> DMatrix<Comp
 /// Replaces each spectrum by that of its orthogonal projection onto the
 /// span of the Γ-orbit of the generators, using the Parseval frame
 /// operator `P(ξ) = d⁻¹ W Wᴴ` at each orbit representative and transporting
-/// each orbit point there and back. All spectra go through each fiber at
-/// once (`W (Wᴴ X)` with `X` the `d x m` matrix of their fibers); orbits run
+/// each orbit point there and back. All spectra go through an orbit's
+/// fibers at once (`W (Wᴴ X)` with `X` the `d x rm` matrix of the fibers
+/// of its `r` points in the `m` spectra, transported to `ξ0`); orbits run
 /// on several threads and each fiber is written in place, so the result does
 /// not depend on the thread count.
 pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>], spectra: &mut [Vec<Complex64>]) {
@@ -537,20 +538,20 @@ pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>]
     let gens: Vec<&[Complex64]> = generator_spectra.iter().map(|g| g.as_slice()).collect();
     let orbits = sym.orbits();
     let count = spectra.len();
-    let work = |k: usize, spectra: &[Vec<Complex64>]| -> Vec<(Gather, DMatrix<Complex64>)> {
+    // Every point's fibers of every spectrum side by side (point-major), so
+    // that an orbit is one pair of matrix products, not one per point.
+    let work = |k: usize, spectra: &[Vec<Complex64>]| -> (Vec<Gather>, DMatrix<Complex64>) {
         let orbit = &orbits[k];
         let (wa, wb) = split(&fiber_matrix(sym, orbit.rep, &gens));
-        let mut out = Vec::with_capacity(orbit.points.len());
-        for &(_, op) in &orbit.points {
-            let gather = sym.gather(orbit.rep, op);
-            let mut x = DMatrix::<Complex64>::zeros(gather.index.len(), count);
+        let gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
+        let mut x = DMatrix::<Complex64>::zeros(wa.nrows(), gathers.len() * count);
+        for (p, gather) in gathers.iter().enumerate() {
             for (i, s) in spectra.iter().enumerate() {
-                gather.apply_into(s, x.column_mut(i).as_mut_slice());
+                gather.apply_into(s, x.column_mut(p * count + i).as_mut_slice());
             }
-            let y = product_parts(&wa, &wb, &adjoint_product_parts(&wa, &wb, &x)) * Complex64::new(1.0 / d, 0.0);
-            out.push((gather, y));
         }
-        out
+        let y = product_parts(&wa, &wb, &adjoint_product_parts(&wa, &wb, &x)) * Complex64::new(1.0 / d, 0.0);
+        (gathers, y)
     };
     // Orbits in waves: workers read the spectra, then the calling thread
     // writes the wave's fibers (no orbit reads another's fibers), so memory
@@ -565,9 +566,11 @@ pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>]
                 Ok(())
             });
         let Ok(()) = done;
-        for (gather, y) in writes.into_iter().flatten() {
-            for (i, s) in spectra.iter_mut().enumerate() {
-                gather.scatter(y.column(i).as_slice(), s);
+        for (gathers, y) in writes {
+            for (p, gather) in gathers.iter().enumerate() {
+                for (i, s) in spectra.iter_mut().enumerate() {
+                    gather.scatter(y.column(p * count + i).as_slice(), s);
+                }
             }
         }
     }
