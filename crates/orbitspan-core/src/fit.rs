@@ -18,7 +18,7 @@ use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
 use crate::frame;
-use crate::isotypic::{isotypic_blocks, Monomial};
+use crate::isotypic::{isotypic_blocks, Block, Monomial, SparseBasis};
 use crate::matmul::{self, Part};
 use crate::model::Model;
 use crate::progress::Progress;
@@ -660,18 +660,20 @@ pub(crate) fn solve_orbit(
         (None, None) => x.nrows(),
     };
     let blocks = isotypic_blocks(n, &ops)?;
-    // A trivial stabiliser gives one block with the identity as basis.
+    // A trivial stabiliser gives one block with the identity as basis;
+    // otherwise each block's basis by its nonzero entries, made once.
     let whole = blocks.len() == 1 && ops.len() <= 1;
+    let sparse: Vec<SparseBasis> = if whole { Vec::new() } else { blocks.iter().map(Block::sparse).collect() };
     // Gram path with a stabiliser, per block: `Z = Y B` (real and imaginary
     // parts; each column of `B` has at most `|H|` entries) and the block's
     // Gram matrix `ZᴴZ / |H| = Bᴴ (YᴴY / |H|) B`, made from `Z` directly:
     // `Σ_b n_b² d` instead of `n² d` for the whole Gram matrix (half for a
     // stabiliser of two elements).
     let block_grams: Vec<((DMatrix<f64>, DMatrix<f64>), DMatrix<Complex64>)> = match &y {
-        Some((ya, yb)) if !whole => blocks
+        Some((ya, yb)) => sparse
             .iter()
             .map(|b| {
-                let z = b.sparse().times_parts(ya, yb);
+                let z = b.times_parts(ya, yb);
                 let g = gram(&z.0, &z.1) * Complex64::new(1.0 / hsize, 0.0);
                 (z, g)
             })
@@ -709,7 +711,7 @@ pub(crate) fn solve_orbit(
         } else if let Some((_, g)) = block_grams.get(index) {
             hermitian_eigen(g.clone())
         } else {
-            hermitian_eigen(b.sparse().compress(&x))
+            hermitian_eigen(sparse[index].compress(&x))
         };
         let mut order: Vec<usize> = (0..eig.eigenvalues.len()).collect();
         order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
@@ -747,8 +749,8 @@ pub(crate) fn solve_orbit(
         left_out += (0..kept.len()).filter(|&e| !kept[e]).map(|e| eig.eigenvalues[e].max(0.0)).sum::<f64>();
         decompositions.push((eig, groups, kept));
     }
-    for (index, (b, (eig, groups, _))) in blocks.iter().zip(&decompositions).enumerate() {
-        let sparse = (!whole && y.is_none()).then(|| b.sparse());
+    for (index, (eig, groups, _)) in decompositions.iter().enumerate() {
+        let sparse = sparse.get(index).filter(|_| y.is_none());
         let block_vectors = block_grams.get(index).map(|(z, _)| z);
         // One product per (block, layer): its shape does not depend on how
         // many layers are kept, so the generators for L are bit-identical to
@@ -826,13 +828,16 @@ pub(crate) fn solve_orbit(
     }
     let discard = if y.is_none() && untwisted_gram.is_none() && d - kept_count < kept_count {
         let mut columns = Vec::with_capacity(d - kept_count);
-        for (b, (eig, _, kept)) in blocks.iter().zip(&decompositions) {
+        for (index, (eig, _, kept)) in decompositions.iter().enumerate() {
             let rest: Vec<usize> = (0..kept.len()).filter(|&e| !kept[e]).collect();
             if rest.is_empty() {
                 continue;
             }
             let coeffs = DMatrix::from_fn(eig.eigenvalues.len(), rest.len(), |row, c| eig.eigenvectors[(row, rest[c])]);
-            let v = if whole { coeffs } else { b.sparse().expand(&coeffs) };
+            let v = match sparse.get(index) {
+                Some(b) => b.expand(&coeffs),
+                None => coeffs,
+            };
             columns.extend(v.column_iter().map(|c| c.into_owned()));
         }
         Discard::Complement(if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) })

@@ -704,6 +704,13 @@ impl Session {
             })
             .collect::<JsResult<Vec<Image>>>()?;
         let model = Model::new(record.settings, height, width, images).map_err(error)?;
+        self.use_model(model)
+    }
+
+    /// Makes `model` the current model, as opening a model file does: the
+    /// last fit's report is kept, a chosen count and a measured lattice are
+    /// not. Returns the model's info.
+    fn use_model(&mut self, model: Model) -> JsResult<JsValue> {
         self.model = Some(model);
         self.chosen = None;
         self.lattice_fit = None;
@@ -715,10 +722,7 @@ impl Session {
     #[wasm_bindgen(js_name = openModel)]
     pub fn open_model(&mut self, name: &str, bytes: &[u8]) -> JsResult<JsValue> {
         let model = Model::from_bytes(name, bytes).map_err(error)?;
-        self.model = Some(model);
-        self.chosen = None;
-        self.lattice_fit = None;
-        self.model_info()
+        self.use_model(model)
     }
 
     /// Applies the current model to the stack: per-image
