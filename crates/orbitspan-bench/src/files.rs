@@ -46,6 +46,10 @@ pub struct BrowserTiming {
     /// After each fit, seconds of the first image's pictures request.
     #[serde(default)]
     pub picture_seconds: Vec<f64>,
+    /// Then seconds of the next image's pictures request (the model's
+    /// spectra made by then).
+    #[serde(default)]
+    pub next_picture_seconds: Vec<f64>,
     /// After each fit, seconds of the model file request.
     #[serde(default)]
     pub model_file_seconds: Vec<f64>,

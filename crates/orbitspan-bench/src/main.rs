@@ -121,6 +121,8 @@ struct BrowserResult {
     /// The page's next requests after a fit: the first image's pictures and
     /// the model file (`None` when not measured).
     picture_seconds: Option<f64>,
+    /// Then the next image's pictures.
+    next_picture_seconds: Option<f64>,
     model_file_seconds: Option<f64>,
     native_seconds: f64,
     wasm_over_native: f64,
@@ -352,6 +354,7 @@ fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> 
             worker_seconds: worker,
             page_seconds: page,
             picture_seconds: (!t.picture_seconds.is_empty()).then(|| median(t.picture_seconds.clone())),
+            next_picture_seconds: (!t.next_picture_seconds.is_empty()).then(|| median(t.next_picture_seconds.clone())),
             model_file_seconds: (!t.model_file_seconds.is_empty()).then(|| median(t.model_file_seconds.clone())),
             native_seconds: native,
             wasm_over_native: worker / native,
@@ -409,12 +412,12 @@ fn table(r: &Results) -> String {
     if r.browser.is_empty() {
         s.push_str(&format!("\nwasm / native: not measured ({})\n", r.browser_note.as_deref().unwrap_or("no browser run")));
     } else {
-        s.push_str("\n| in the browser (headless Chromium, one worker) | wasm / native (all threads) | wasm / native (one thread) | fit in the worker | request in the page | then: one image's pictures | then: model file | native, same files | native, one thread | wasm memory / stack f32 | wasm memory |\n");
-        s.push_str("|---|---|---|---|---|---|---|---|---|---|---|\n");
+        s.push_str("\n| in the browser (headless Chromium, one worker) | wasm / native (all threads) | wasm / native (one thread) | fit in the worker | request in the page | then: one image's pictures | then: the next image's | then: model file | native, same files | native, one thread | wasm memory / stack f32 | wasm memory |\n");
+        s.push_str("|---|---|---|---|---|---|---|---|---|---|---|---|\n");
         let seconds = |v: Option<f64>| v.map_or("–".to_string(), |v| format!("{v:.3} s"));
         for b in &r.browser {
             s.push_str(&format!(
-                "| {}: {} images | {:.2} | {:.2} | {:.3} s | {:.3} s | {} | {} | {:.3} s | {:.3} s | {:.2} | {} |\n",
+                "| {}: {} images | {:.2} | {:.2} | {:.3} s | {:.3} s | {} | {} | {} | {:.3} s | {:.3} s | {:.2} | {} |\n",
                 b.name,
                 b.images,
                 b.wasm_over_native,
@@ -422,6 +425,7 @@ fn table(r: &Results) -> String {
                 b.worker_seconds,
                 b.page_seconds,
                 seconds(b.picture_seconds),
+                seconds(b.next_picture_seconds),
                 seconds(b.model_file_seconds),
                 b.native_seconds,
                 b.native_one_thread_seconds,

@@ -65,6 +65,28 @@ impl Gather {
     }
 }
 
+/// A spectrum rearranged fiber by fiber: fiber `f`'s `d` values at
+/// `f · d .. (f + 1) · d`, `ξ = rep(f) + η_k` at `f · d + k` (`η_k` in the
+/// order of [`Lattice::dual`]). That is the compact layout of
+/// [`Gather::localised`] with every fiber in its own slot (`slot[f] = f`,
+/// [`every_fiber`]), so [`Symmetry::gather_local`] reads each gathered fiber
+/// from `d` neighbouring values instead of from values spread over the whole
+/// spectrum (one cache line apart at best, a page apart for large images).
+pub fn fiber_major(lattice: &Lattice, spectrum: &[Complex64]) -> Vec<Complex64> {
+    let dual = lattice.dual();
+    let mut out = Vec::with_capacity(lattice.pixels());
+    for f in 0..lattice.fiber_count() {
+        let rep = lattice.fiber_rep(f);
+        out.extend(dual.iter().map(|&eta| spectrum[lattice.linear(lattice.add(rep, eta))]));
+    }
+    out
+}
+
+/// The slots of [`fiber_major`]'s layout: fiber `f` at slot `f`.
+pub fn every_fiber(lattice: &Lattice) -> Vec<usize> {
+    (0..lattice.fiber_count()).collect()
+}
+
 /// One orbit of the point group on the fibers.
 #[derive(Clone, Debug)]
 pub struct Orbit {
@@ -482,6 +504,34 @@ mod tests {
                 let xi = [i / 12, i % 12];
                 assert_eq!(pmg.gather(xi, k).index, pmg.gather_reference(xi, k).index);
                 assert!(pmg.gather(xi, k).phase == pmg.gather_reference(xi, k).phase);
+            }
+        }
+    }
+
+    /// [`fiber_major`] read through [`Symmetry::gather_local`] with
+    /// [`every_fiber`] gives what the gather reads from the whole spectrum,
+    /// bit for bit: every group (centred, hexagonal and glide ones among
+    /// them), every operation, every frequency, a spectrum whose values are
+    /// all different; and the layout holds every value once.
+    #[test]
+    fn fiber_major_read_locally_equals_the_whole_spectrum() {
+        for symbol in GroupSymbol::ALL {
+            for (n, cell) in [([24, 24], [6, 6]), ([16, 16], [4, 4])] {
+                let Ok(sym) = Symmetry::new(n, cell, &PlaneGroup::standard(symbol)) else { continue };
+                let spectrum: Vec<Complex64> = (0..n[0] * n[1]).map(|i| Complex64::new(i as f64, -0.5 * i as f64)).collect();
+                let major = fiber_major(sym.lattice(), &spectrum);
+                let mut seen: Vec<f64> = major.iter().map(|z| z.re).collect();
+                seen.sort_by(f64::total_cmp);
+                assert!(seen.iter().enumerate().all(|(i, &v)| v == i as f64), "{symbol:?}: not a rearrangement");
+                let slot = every_fiber(sym.lattice());
+                for k in 0..sym.order() {
+                    for i in 0..n[0] * n[1] {
+                        let xi = [i / n[1], i % n[1]];
+                        let whole = sym.gather(xi, k).apply(&spectrum);
+                        let local = sym.gather_local(xi, k, &slot).apply(&major);
+                        assert!(whole == local, "{symbol:?} op {k} at {xi:?}");
+                    }
+                }
             }
         }
     }

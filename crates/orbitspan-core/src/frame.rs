@@ -23,7 +23,7 @@
 
 use crate::eigen;
 use crate::error::{Error, Result};
-use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
+use crate::fiber::{every_fiber, for_each_parallel, Gather, Orbit, Symmetry};
 use crate::fit::{adjoint_product_parts, from_group_frame, product_parts, split, OrbitSolution};
 use crate::pair_fibers;
 use crate::prng::SplitMix64;
@@ -506,13 +506,8 @@ fn compact_gathers(sym: &Symmetry, orbit: &Orbit) -> (Vec<Gather>, Vec<Gather>) 
 }
 
 /// The `d x (|G| · count)` matrix of fibers at `xi` of `π(γ_g) φ` for every
-/// point-group element `g` and every spectrum `φ`; column `g · count + j`.
-pub(crate) fn fiber_matrix(sym: &Symmetry, xi: [usize; 2], spectra: &[&[Complex64]]) -> DMatrix<Complex64> {
-    let gathers: Vec<Gather> = (0..sym.order()).map(|g| sym.gather(xi, g)).collect();
-    gathered_matrix(&gathers, spectra)
-}
-
-/// [`fiber_matrix`] from the gathers at `xi` of every point-group element.
+/// point-group element `g` and every spectrum `φ` (column `g · count + j`),
+/// from the gathers at `xi` of every element.
 fn gathered_matrix(gathers: &[Gather], spectra: &[&[Complex64]]) -> DMatrix<Complex64> {
     let d = gathers.first().map_or(0, |g| g.index.len());
     let count = spectra.len();
@@ -532,17 +527,21 @@ fn gathered_matrix(gathers: &[Gather], spectra: &[&[Complex64]]) -> DMatrix<Comp
 /// fibers at once (`W (Wᴴ X)` with `X` the `d x rm` matrix of the fibers
 /// of its `r` points in the `m` spectra, transported to `ξ0`); orbits run
 /// on several threads and each fiber is written in place, so the result does
-/// not depend on the thread count.
-pub(crate) fn frame_project(sym: &Symmetry, generator_spectra: &[Vec<Complex64>], spectra: &mut [Vec<Complex64>]) {
+/// not depend on the thread count. The generators' spectra come fiber by
+/// fiber ([`fiber_major`]): `W` gathers `|G| · L` fibers per orbit, each
+/// from `d` neighbouring values.
+pub(crate) fn frame_project(sym: &Symmetry, generator_fibers: &[Vec<Complex64>], spectra: &mut [Vec<Complex64>]) {
     let d = sym.lattice().fiber_len() as f64;
-    let gens: Vec<&[Complex64]> = generator_spectra.iter().map(|g| g.as_slice()).collect();
+    let gens: Vec<&[Complex64]> = generator_fibers.iter().map(|g| g.as_slice()).collect();
+    let every = every_fiber(sym.lattice());
     let orbits = sym.orbits();
     let count = spectra.len();
     // Every point's fibers of every spectrum side by side (point-major), so
     // that an orbit is one pair of matrix products, not one per point.
     let work = |k: usize, spectra: &[Vec<Complex64>]| -> (Vec<Gather>, DMatrix<Complex64>) {
         let orbit = &orbits[k];
-        let (wa, wb) = split(&fiber_matrix(sym, orbit.rep, &gens));
+        let w_gathers: Vec<Gather> = (0..sym.order()).map(|g| sym.gather_local(orbit.rep, g, &every)).collect();
+        let (wa, wb) = split(&gathered_matrix(&w_gathers, &gens));
         let gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
         let mut x = DMatrix::<Complex64>::zeros(wa.nrows(), gathers.len() * count);
         for (p, gather) in gathers.iter().enumerate() {

@@ -14,7 +14,7 @@
 //! | 8·L·height·width | the generators as `f64`, generator-major then row-major |
 
 use crate::error::{Error, Result};
-use crate::fiber::Symmetry;
+use crate::fiber::{fiber_major, Symmetry};
 use crate::fit::{check, from_group_frame, group_frame_spectra, group_frame_spectrum, ratio, validate};
 use crate::frame::frame_project;
 use crate::progress::Progress;
@@ -41,7 +41,8 @@ pub struct Model {
     width: usize,
     generators: Vec<Image>,
     symmetry: Symmetry,
-    /// The generators' spectra in the group frame, made on first use (a
+    /// The generators' spectra in the group frame, fiber by fiber
+    /// ([`fiber_major`], what the projection reads), made on first use (a
     /// fit that only reports does not hold them).
     spectra: std::sync::OnceLock<Vec<Vec<Complex64>>>,
 }
@@ -140,8 +141,11 @@ impl Model {
     fn project_batch(&self, images: &[&Image]) -> Vec<Image> {
         let origin = self.settings.origin;
         let mut spectra: Vec<Vec<Complex64>> = images.iter().map(|img| group_frame_spectrum(img, origin)).collect();
-        let generator_spectra = self.spectra.get_or_init(|| group_frame_spectra(&self.generators, self.settings.origin));
-        frame_project(&self.symmetry, generator_spectra, &mut spectra);
+        let generator_fibers = self.spectra.get_or_init(|| {
+            let whole = group_frame_spectra(&self.generators, origin);
+            whole.into_iter().map(|s| fiber_major(self.symmetry.lattice(), &s)).collect()
+        });
+        frame_project(&self.symmetry, generator_fibers, &mut spectra);
         spectra
             .iter()
             .map(|s| from_group_frame(&ifft2_real(s, self.height, self.width).0, origin))
