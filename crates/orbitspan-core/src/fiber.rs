@@ -65,26 +65,80 @@ impl Gather {
     }
 }
 
-/// A spectrum rearranged fiber by fiber: fiber `f`'s `d` values at
-/// `f · d .. (f + 1) · d`, `ξ = rep(f) + η_k` at `f · d + k` (`η_k` in the
-/// order of [`Lattice::dual`]). That is the compact layout of
-/// [`Gather::localised`] with every fiber in its own slot (`slot[f] = f`,
-/// [`every_fiber`]), so [`Symmetry::gather_local`] reads each gathered fiber
-/// from `d` neighbouring values instead of from values spread over the whole
-/// spectrum (one cache line apart at best, a page apart for large images).
-pub fn fiber_major(lattice: &Lattice, spectrum: &[Complex64]) -> Vec<Complex64> {
-    let dual = lattice.dual();
-    let mut out = Vec::with_capacity(lattice.pixels());
-    for f in 0..lattice.fiber_count() {
-        let rep = lattice.fiber_rep(f);
-        out.extend(dual.iter().map(|&eta| spectrum[lattice.linear(lattice.add(rep, eta))]));
-    }
-    out
+/// Where a real image's spectrum is kept fiber by fiber, half of it: a
+/// real image has `f̂(−ξ) = conj f̂(ξ)`, so the fiber holding `−ξ` (its
+/// *mirror*) is the conjugate of the fiber holding `ξ`, reordered. Only
+/// the *primary* fiber of each mirror couple (the smaller index; a fiber
+/// that is its own mirror is primary) is kept, its `d` values together
+/// (`ξ = rep(f) + η_k` at `slot(f) · d + k`, `η_k` in the order of
+/// [`Lattice::dual`]): about half the values of the whole spectrum, and a
+/// gathered fiber is read from `d` neighbouring values instead of from
+/// values spread over the whole spectrum (a page apart for large images).
+#[derive(Clone, Debug)]
+pub struct HalfFibers {
+    /// Per fiber, its slot if it is primary, else `usize::MAX`.
+    slot: Vec<usize>,
+    /// Per fiber, the fiber holding the negatives of its frequencies.
+    mirror: Vec<usize>,
+    /// `slot[f] = f` for every fiber: the whole layout that
+    /// [`Symmetry::gather_local`] indexes, which [`HalfFibers::gather`]
+    /// maps onto the kept half.
+    every: Vec<usize>,
 }
 
-/// The slots of [`fiber_major`]'s layout: fiber `f` at slot `f`.
-pub fn every_fiber(lattice: &Lattice) -> Vec<usize> {
-    (0..lattice.fiber_count()).collect()
+impl HalfFibers {
+    pub fn new(lattice: &Lattice) -> HalfFibers {
+        let count = lattice.fiber_count();
+        let mirror: Vec<usize> = (0..count).map(|f| lattice.fiber_of(lattice.neg(lattice.fiber_rep(f)))).collect();
+        let mut next = 0;
+        let slot = (0..count)
+            .map(|f| match f <= mirror[f] {
+                true => {
+                    next += 1;
+                    next - 1
+                }
+                false => usize::MAX,
+            })
+            .collect();
+        HalfFibers { slot, mirror, every: (0..count).collect() }
+    }
+
+    /// The kept values of a real image's spectrum (row-major, whole).
+    pub fn keep(&self, lattice: &Lattice, spectrum: &[Complex64]) -> Vec<Complex64> {
+        let dual = lattice.dual();
+        let mut out = Vec::with_capacity(self.slot.iter().filter(|&&s| s != usize::MAX).count() * dual.len());
+        for f in (0..self.slot.len()).filter(|&f| self.slot[f] != usize::MAX) {
+            let rep = lattice.fiber_rep(f);
+            out.extend(dual.iter().map(|&eta| spectrum[lattice.linear(lattice.add(rep, eta))]));
+        }
+        out
+    }
+
+    /// [`Symmetry::gather`] reading from [`HalfFibers::keep`]'s values:
+    /// the gather and whether to conjugate each value it reads before its
+    /// phase (`v_k = phase_k · conj(kept[index_k])` when `true`). Every value
+    /// of a gather lies in one fiber; when that fiber is not kept its
+    /// values are the conjugates of its mirror's, at the negated frequencies.
+    pub fn gather(&self, sym: &Symmetry, xi: Freq, op: usize) -> (Gather, bool) {
+        let l = sym.lattice();
+        let d = l.fiber_len();
+        let mut g = sym.gather_local(xi, op, &self.every);
+        let Some(&first) = g.index.first() else { return (g, false) };
+        let f = first / d;
+        if self.slot[f] != usize::MAX {
+            let base = self.slot[f] * d;
+            g.index.iter_mut().for_each(|i| *i = base + *i % d);
+            return (g, false);
+        }
+        let m = self.mirror[f];
+        let (rep, mirror_rep, base) = (l.fiber_rep(f), l.fiber_rep(m), self.slot[m] * d);
+        let dual = l.dual();
+        for i in g.index.iter_mut() {
+            let minus = l.neg(l.add(rep, dual[*i % d]));
+            *i = base + l.dual_index(l.sub(minus, mirror_rep)).expect("the mirror fiber holds the negated frequencies");
+        }
+        (g, true)
+    }
 }
 
 /// One orbit of the point group on the fibers.
@@ -508,28 +562,42 @@ mod tests {
         }
     }
 
-    /// [`fiber_major`] read through [`Symmetry::gather_local`] with
-    /// [`every_fiber`] gives what the gather reads from the whole spectrum,
-    /// bit for bit: every group (centred, hexagonal and glide ones among
-    /// them), every operation, every frequency, a spectrum whose values are
-    /// all different; and the layout holds every value once.
+    /// [`HalfFibers`] read through its gathers gives what the gather
+    /// reads from the whole spectrum of a real image, bit for bit: every
+    /// group (centred, hexagonal and glide ones among them, with and
+    /// without `−I`), every operation, every frequency, on a spectrum with
+    /// `f̂(−ξ) = conj f̂(ξ)` exactly and otherwise all values different; and
+    /// it keeps every primary fiber once, at most about half the spectrum.
     #[test]
-    fn fiber_major_read_locally_equals_the_whole_spectrum() {
+    fn half_fibers_read_what_the_whole_spectrum_holds() {
         for symbol in GroupSymbol::ALL {
-            for (n, cell) in [([24, 24], [6, 6]), ([16, 16], [4, 4])] {
+            for (n, cell) in [([24, 24], [6, 6]), ([16, 16], [4, 4]), ([12, 20], [4, 4])] {
                 let Ok(sym) = Symmetry::new(n, cell, &PlaneGroup::standard(symbol)) else { continue };
-                let spectrum: Vec<Complex64> = (0..n[0] * n[1]).map(|i| Complex64::new(i as f64, -0.5 * i as f64)).collect();
-                let major = fiber_major(sym.lattice(), &spectrum);
-                let mut seen: Vec<f64> = major.iter().map(|z| z.re).collect();
-                seen.sort_by(f64::total_cmp);
-                assert!(seen.iter().enumerate().all(|(i, &v)| v == i as f64), "{symbol:?}: not a rearrangement");
-                let slot = every_fiber(sym.lattice());
+                let l = sym.lattice();
+                let mut spectrum = vec![Complex64::new(0.0, 0.0); n[0] * n[1]];
+                for i in 0..n[0] * n[1] {
+                    let xi = [i / n[1], i % n[1]];
+                    let j = l.linear(l.neg(xi));
+                    spectrum[i] = match i.cmp(&j) {
+                        std::cmp::Ordering::Less => Complex64::new(i as f64, 0.25 + i as f64),
+                        std::cmp::Ordering::Equal => Complex64::new(i as f64, 0.0),
+                        std::cmp::Ordering::Greater => Complex64::new(j as f64, 0.25 + j as f64).conj(),
+                    };
+                }
+                let half = HalfFibers::new(l);
+                let kept = half.keep(l, &spectrum);
+                let primary = (0..l.fiber_count()).filter(|&f| half.slot[f] != usize::MAX).count();
+                let own_mirrors = (0..l.fiber_count()).filter(|&f| half.mirror[f] == f).count();
+                assert_eq!(kept.len(), primary * l.fiber_len());
+                assert_eq!(2 * primary, l.fiber_count() + own_mirrors, "{symbol:?}");
                 for k in 0..sym.order() {
                     for i in 0..n[0] * n[1] {
                         let xi = [i / n[1], i % n[1]];
                         let whole = sym.gather(xi, k).apply(&spectrum);
-                        let local = sym.gather_local(xi, k, &slot).apply(&major);
-                        assert!(whole == local, "{symbol:?} op {k} at {xi:?}");
+                        let (g, conj) = half.gather(&sym, xi, k);
+                        let local: Vec<Complex64> =
+                            g.index.iter().zip(&g.phase).map(|(&j, &p)| p * if conj { kept[j].conj() } else { kept[j] }).collect();
+                        assert!(whole == local, "{symbol:?} {n:?} op {k} at {xi:?}");
                     }
                 }
             }

@@ -530,7 +530,16 @@ pub(crate) fn group_frame_spectrum(img: &Image, origin: [usize; 2]) -> Vec<Compl
 
 /// [`group_frame_spectrum`] of each image, two real images per complex
 /// transform ([`PackedPair`]): half the transforms of one each.
+#[cfg(test)]
 pub(crate) fn group_frame_spectra(images: &[Image], origin: [usize; 2]) -> Vec<Vec<Complex64>> {
+    group_frame_spectra_into(images, origin, |s| s)
+}
+
+/// `keep` of each image's [`group_frame_spectrum`], two images per
+/// complex transform ([`PackedPair`]), each spectrum handed over as soon
+/// as it is made: at most two whole spectra exist at once, however many
+/// images there are.
+pub(crate) fn group_frame_spectra_into<T>(images: &[Image], origin: [usize; 2], mut keep: impl FnMut(Vec<Complex64>) -> T) -> Vec<T> {
     let mut out = Vec::with_capacity(images.len());
     for pair in images.chunks(2) {
         let packed = PackedPair::transform(&pair[0], pair.get(1), origin);
@@ -539,8 +548,8 @@ pub(crate) fn group_frame_spectra(images: &[Image], origin: [usize; 2]) -> Vec<V
             packed.second_into(&mut b);
             b
         });
-        out.push(packed.into_first());
-        out.extend(second);
+        out.push(keep(packed.into_first()));
+        out.extend(second.map(&mut keep));
     }
     out
 }

@@ -23,7 +23,7 @@
 
 use crate::eigen;
 use crate::error::{Error, Result};
-use crate::fiber::{every_fiber, for_each_parallel, Gather, Orbit, Symmetry};
+use crate::fiber::{for_each_parallel, Gather, HalfFibers, Orbit, Symmetry};
 use crate::fit::{adjoint_product_parts, from_group_frame, product_parts, split, OrbitSolution};
 use crate::pair_fibers;
 use crate::prng::SplitMix64;
@@ -520,6 +520,24 @@ fn gathered_matrix(gathers: &[Gather], spectra: &[&[Complex64]]) -> DMatrix<Comp
     w
 }
 
+/// [`gathered_matrix`] at `xi` for every point-group element, from
+/// spectra of real images kept by [`HalfFibers::keep`].
+fn half_gathered_matrix(sym: &Symmetry, half: &HalfFibers, xi: [usize; 2], kept: &[Vec<Complex64>]) -> DMatrix<Complex64> {
+    let d = sym.lattice().fiber_len();
+    let count = kept.len();
+    let mut w = DMatrix::zeros(d, sym.order() * count);
+    for g in 0..sym.order() {
+        let (gather, conj) = half.gather(sym, xi, g);
+        for (j, s) in kept.iter().enumerate() {
+            let column = w.column_mut(g * count + j);
+            for ((o, &i), &p) in column.into_iter().zip(&gather.index).zip(&gather.phase) {
+                *o = p * if conj { s[i].conj() } else { s[i] };
+            }
+        }
+    }
+    w
+}
+
 /// Replaces each spectrum by that of its orthogonal projection onto the
 /// span of the Γ-orbit of the generators, using the Parseval frame
 /// operator `P(ξ) = d⁻¹ W Wᴴ` at each orbit representative and transporting
@@ -527,21 +545,18 @@ fn gathered_matrix(gathers: &[Gather], spectra: &[&[Complex64]]) -> DMatrix<Comp
 /// fibers at once (`W (Wᴴ X)` with `X` the `d x rm` matrix of the fibers
 /// of its `r` points in the `m` spectra, transported to `ξ0`); orbits run
 /// on several threads and each fiber is written in place, so the result does
-/// not depend on the thread count. The generators' spectra come fiber by
-/// fiber ([`fiber_major`]): `W` gathers `|G| · L` fibers per orbit, each
-/// from `d` neighbouring values.
-pub(crate) fn frame_project(sym: &Symmetry, generator_fibers: &[Vec<Complex64>], spectra: &mut [Vec<Complex64>]) {
+/// not depend on the thread count. The generators' spectra come as
+/// [`HalfFibers::keep`] makes them: `W` gathers `|G| · L` fibers per
+/// orbit, each from `d` neighbouring values.
+pub(crate) fn frame_project(sym: &Symmetry, half: &HalfFibers, generator_fibers: &[Vec<Complex64>], spectra: &mut [Vec<Complex64>]) {
     let d = sym.lattice().fiber_len() as f64;
-    let gens: Vec<&[Complex64]> = generator_fibers.iter().map(|g| g.as_slice()).collect();
-    let every = every_fiber(sym.lattice());
     let orbits = sym.orbits();
     let count = spectra.len();
     // Every point's fibers of every spectrum side by side (point-major), so
     // that an orbit is one pair of matrix products, not one per point.
     let work = |k: usize, spectra: &[Vec<Complex64>]| -> (Vec<Gather>, DMatrix<Complex64>) {
         let orbit = &orbits[k];
-        let w_gathers: Vec<Gather> = (0..sym.order()).map(|g| sym.gather_local(orbit.rep, g, &every)).collect();
-        let (wa, wb) = split(&gathered_matrix(&w_gathers, &gens));
+        let (wa, wb) = split(&half_gathered_matrix(sym, half, orbit.rep, generator_fibers));
         let gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| sym.gather(orbit.rep, op)).collect();
         let mut x = DMatrix::<Complex64>::zeros(wa.nrows(), gathers.len() * count);
         for (p, gather) in gathers.iter().enumerate() {

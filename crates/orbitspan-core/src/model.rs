@@ -14,8 +14,8 @@
 //! | 8·L·height·width | the generators as `f64`, generator-major then row-major |
 
 use crate::error::{Error, Result};
-use crate::fiber::{fiber_major, Symmetry};
-use crate::fit::{check, from_group_frame, group_frame_spectra, group_frame_spectrum, ratio, validate};
+use crate::fiber::{HalfFibers, Symmetry};
+use crate::fit::{check, from_group_frame, group_frame_spectra_into, group_frame_spectrum, ratio, validate};
 use crate::frame::frame_project;
 use crate::progress::Progress;
 use crate::report::ImageError;
@@ -41,10 +41,10 @@ pub struct Model {
     width: usize,
     generators: Vec<Image>,
     symmetry: Symmetry,
-    /// The generators' spectra in the group frame, fiber by fiber
-    /// ([`fiber_major`], what the projection reads), made on first use (a
-    /// fit that only reports does not hold them).
-    spectra: std::sync::OnceLock<Vec<Vec<Complex64>>>,
+    /// The generators' spectra in the group frame, the half that
+    /// [`HalfFibers`] keeps (what the projection reads), made on first use
+    /// (a fit that only reports does not hold them).
+    spectra: std::sync::OnceLock<(HalfFibers, Vec<Vec<Complex64>>)>,
 }
 
 #[derive(Serialize, Deserialize)]
@@ -118,7 +118,7 @@ impl Model {
     }
 
     /// Drops the generators' spectra made for projections (made again when
-    /// next needed): twice the generators' size, which a caller keeping
+    /// next needed): about the generators' size, which a caller keeping
     /// this model while it fits a new one need not hold meanwhile.
     pub fn forget_spectra(&mut self) {
         self.spectra = std::sync::OnceLock::new();
@@ -141,11 +141,13 @@ impl Model {
     fn project_batch(&self, images: &[&Image]) -> Vec<Image> {
         let origin = self.settings.origin;
         let mut spectra: Vec<Vec<Complex64>> = images.iter().map(|img| group_frame_spectrum(img, origin)).collect();
-        let generator_fibers = self.spectra.get_or_init(|| {
-            let whole = group_frame_spectra(&self.generators, origin);
-            whole.into_iter().map(|s| fiber_major(self.symmetry.lattice(), &s)).collect()
+        let (half, generator_fibers) = self.spectra.get_or_init(|| {
+            let l = self.symmetry.lattice();
+            let half = HalfFibers::new(l);
+            let kept = group_frame_spectra_into(&self.generators, origin, |s| half.keep(l, &s));
+            (half, kept)
         });
-        frame_project(&self.symmetry, generator_fibers, &mut spectra);
+        frame_project(&self.symmetry, half, generator_fibers, &mut spectra);
         spectra
             .iter()
             .map(|s| from_group_frame(&ifft2_real(s, self.height, self.width).0, origin))
