@@ -89,6 +89,37 @@ impl SparseBasis {
             sum
         })
     }
+    /// `Bᵀ X B` for a real `n x n` `X` and a basis with real entries (their
+    /// imaginary parts are not read).
+    pub fn compress_real(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
+        let k = self.columns.len();
+        DMatrix::from_fn(k, k, |i, j| {
+            let mut sum = 0.0;
+            for &(a, u) in &self.columns[i] {
+                let mut row = 0.0;
+                for &(b, w) in &self.columns[j] {
+                    row += x[(a, b)] * w.re;
+                }
+                sum += u.re * row;
+            }
+            sum
+        })
+    }
+    /// `B C` for a real `C` and a basis with real entries (imaginary parts
+    /// not read).
+    pub fn expand_real(&self, c: &DMatrix<f64>) -> DMatrix<f64> {
+        assert_eq!(c.nrows(), self.columns.len(), "coefficients for {} basis vectors", self.columns.len());
+        let mut out = DMatrix::zeros(self.rows, c.ncols());
+        for (col, mut target) in out.column_iter_mut().enumerate() {
+            for (i, entries) in self.columns.iter().enumerate() {
+                let z = c[(i, col)];
+                for &(a, u) in entries {
+                    target[a] += u.re * z;
+                }
+            }
+        }
+        out
+    }
     /// `Y B` for `Y = A + iB` given by its real and imaginary parts
     /// (`n` rows each), returned the same way.
     pub fn times_parts(&self, a: &DMatrix<f64>, b: &DMatrix<f64>) -> (DMatrix<f64>, DMatrix<f64>) {
