@@ -84,6 +84,8 @@ pub struct HalfFibers {
     /// [`Symmetry::gather_local`] indexes, which [`HalfFibers::gather`]
     /// maps onto the kept half.
     every: Vec<usize>,
+    /// [`Lattice::dual`], the order of each fiber's values.
+    dual: Vec<Freq>,
 }
 
 impl HalfFibers {
@@ -100,16 +102,15 @@ impl HalfFibers {
                 false => usize::MAX,
             })
             .collect();
-        HalfFibers { slot, mirror, every: (0..count).collect() }
+        HalfFibers { slot, mirror, every: (0..count).collect(), dual: lattice.dual() }
     }
 
     /// The kept values of a real image's spectrum (row-major, whole).
     pub fn keep(&self, lattice: &Lattice, spectrum: &[Complex64]) -> Vec<Complex64> {
-        let dual = lattice.dual();
-        let mut out = Vec::with_capacity(self.slot.iter().filter(|&&s| s != usize::MAX).count() * dual.len());
+        let mut out = Vec::with_capacity(self.slot.iter().filter(|&&s| s != usize::MAX).count() * self.dual.len());
         for f in (0..self.slot.len()).filter(|&f| self.slot[f] != usize::MAX) {
             let rep = lattice.fiber_rep(f);
-            out.extend(dual.iter().map(|&eta| spectrum[lattice.linear(lattice.add(rep, eta))]));
+            out.extend(self.dual.iter().map(|&eta| spectrum[lattice.linear(lattice.add(rep, eta))]));
         }
         out
     }
@@ -132,9 +133,8 @@ impl HalfFibers {
         }
         let m = self.mirror[f];
         let (rep, mirror_rep, base) = (l.fiber_rep(f), l.fiber_rep(m), self.slot[m] * d);
-        let dual = l.dual();
         for i in g.index.iter_mut() {
-            let minus = l.neg(l.add(rep, dual[*i % d]));
+            let minus = l.neg(l.add(rep, self.dual[*i % d]));
             *i = base + l.dual_index(l.sub(minus, mirror_rep)).expect("the mirror fiber holds the negated frequencies");
         }
         (g, true)
@@ -574,16 +574,16 @@ mod tests {
             for (n, cell) in [([24, 24], [6, 6]), ([16, 16], [4, 4]), ([12, 20], [4, 4])] {
                 let Ok(sym) = Symmetry::new(n, cell, &PlaneGroup::standard(symbol)) else { continue };
                 let l = sym.lattice();
-                let mut spectrum = vec![Complex64::new(0.0, 0.0); n[0] * n[1]];
-                for i in 0..n[0] * n[1] {
-                    let xi = [i / n[1], i % n[1]];
-                    let j = l.linear(l.neg(xi));
-                    spectrum[i] = match i.cmp(&j) {
-                        std::cmp::Ordering::Less => Complex64::new(i as f64, 0.25 + i as f64),
-                        std::cmp::Ordering::Equal => Complex64::new(i as f64, 0.0),
-                        std::cmp::Ordering::Greater => Complex64::new(j as f64, 0.25 + j as f64).conj(),
-                    };
-                }
+                let spectrum: Vec<Complex64> = (0..n[0] * n[1])
+                    .map(|i| {
+                        let j = l.linear(l.neg([i / n[1], i % n[1]]));
+                        match i.cmp(&j) {
+                            std::cmp::Ordering::Less => Complex64::new(i as f64, 0.25 + i as f64),
+                            std::cmp::Ordering::Equal => Complex64::new(i as f64, 0.0),
+                            std::cmp::Ordering::Greater => Complex64::new(j as f64, 0.25 + j as f64).conj(),
+                        }
+                    })
+                    .collect();
                 let half = HalfFibers::new(l);
                 let kept = half.keep(l, &spectrum);
                 let primary = (0..l.fiber_count()).filter(|&f| half.slot[f] != usize::MAX).count();

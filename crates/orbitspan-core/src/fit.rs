@@ -604,8 +604,9 @@ pub(crate) fn solve_orbit(
         FiberPath::Gram => true,
     };
     let point_gathers: Vec<Gather> = orbit.points.iter().map(|&(_, op)| fibers.gather(sym, orbit.rep, op)).collect();
-    // Trivial stabiliser with mirror couples: the untwisted covariance
-    // `C' = Sᴴ C S` (real symmetric) and `S`, and the couples' first points.
+    // Mirror couples (a trivial stabiliser, or one real untwisted): the
+    // untwisted covariance `C' = Sᴴ C S` (real symmetric, symmetrised over
+    // the stabiliser) and `S`, and the couples' first points.
     let mut untwisted: Option<(DMatrix<f64>, Vec<Complex64>, Vec<Gather>)> = None;
     // Covariance path with a stabiliser that stays real untwisted: the
     // isotypic blocks of the untwisted stabiliser, with real bases.
@@ -844,7 +845,7 @@ pub(crate) fn solve_orbit(
         return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded: vec![0.0; m] });
     }
     // With the untwisted decomposition every eigenvector `e = S u` (`u`
-    // real) is fixed by `J v = D conj(v)`, so the projector onto the kept
+    // real; `u = B' c` with a stabiliser) is fixed by `J v = D conj(v)`, so the projector onto the kept
     // space commutes with `J`, and `v_{p'} = c J v_p` (`|c| = 1`) loses as
     // much as `v_p`: the couples' first points, counted twice, with the
     // real vectors `u` against `w = Sᴴ v` (one real product, not four).
@@ -990,11 +991,10 @@ fn untwisted_eigen(real: DMatrix<f64>, s: &[Complex64]) -> Eigen {
 /// may be real (±1): they are for the mirror lines of pmm and p4m in the
 /// benchmark workloads, and in the tests' fits for about half the
 /// stabilised orbits tried (63 of 114), the others taking the complex way.
-/// Then the isotypic
-/// blocks of the `U'_h` and the decomposition within each are real too
-/// when every block's basis vector is a real vector times a phase (each
-/// vector lives on one orbit of `H` on the coordinates), which is checked,
-/// the phase divided out. `None` when any of it is not real (to `1e-12`):
+/// Then the isotypic blocks of the `U'_h` and the decomposition within
+/// each are real too when every block's basis vector is a real vector
+/// times a phase (each vector lives on one orbit of `H` on the
+/// coordinates), which is checked, the phase divided out. `None` when any of it is not real (to `1e-12`):
 /// the complex way is taken instead. With it the orbit's eigenproblem is
 /// real (about a quarter of the arithmetic) and each image's discarded
 /// energy is measured at half the points in real arithmetic, as for a
