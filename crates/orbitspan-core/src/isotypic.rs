@@ -108,17 +108,7 @@ impl SparseBasis {
     /// `B C` for a real `C` and a basis with real entries (imaginary parts
     /// not read).
     pub fn expand_real(&self, c: &DMatrix<f64>) -> DMatrix<f64> {
-        assert_eq!(c.nrows(), self.columns.len(), "coefficients for {} basis vectors", self.columns.len());
-        let mut out = DMatrix::zeros(self.rows, c.ncols());
-        for (col, mut target) in out.column_iter_mut().enumerate() {
-            for (i, entries) in self.columns.iter().enumerate() {
-                let z = c[(i, col)];
-                for &(a, u) in entries {
-                    target[a] += u.re * z;
-                }
-            }
-        }
-        out
+        self.expand_by(c, |u| u.re)
     }
     /// `Y B` for `Y = A + iB` given by its real and imaginary parts
     /// (`n` rows each), returned the same way.
@@ -138,13 +128,21 @@ impl SparseBasis {
     }
     /// `B C` for a matrix `C` with one row per basis vector.
     pub fn expand(&self, c: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+        self.expand_by(c, |u| u)
+    }
+    /// `B C` with the basis entries read through `entry`.
+    fn expand_by<T: nalgebra::ComplexField + Copy>(
+        &self,
+        c: &DMatrix<T>,
+        entry: impl Fn(Complex64) -> T,
+    ) -> DMatrix<T> {
         assert_eq!(c.nrows(), self.columns.len(), "coefficients for {} basis vectors", self.columns.len());
         let mut out = DMatrix::zeros(self.rows, c.ncols());
         for (col, mut target) in out.column_iter_mut().enumerate() {
             for (i, entries) in self.columns.iter().enumerate() {
                 let z = c[(i, col)];
                 for &(a, u) in entries {
-                    target[a] += u * z;
+                    target[a] += entry(u) * z;
                 }
             }
         }
