@@ -68,8 +68,8 @@ impl Gather {
 /// Where a real image's spectrum is kept fiber by fiber, half of it: a
 /// real image has `f̂(−ξ) = conj f̂(ξ)`, so the fiber holding `−ξ` (its
 /// *mirror*) is the conjugate of the fiber holding `ξ`, reordered. Only
-/// the *primary* fiber of each mirror couple (the smaller index; a fiber
-/// that is its own mirror is primary) is kept, its `d` values together
+/// the primary fiber of each mirror couple ([`Lattice::is_primary`]) is
+/// kept, its `d` values together
 /// (`ξ = rep(f) + η_k` at `slot(f) · d + k`, `η_k` in the order of
 /// [`Lattice::dual`]): about half the values of the whole spectrum, and a
 /// gathered fiber is read from `d` neighbouring values instead of from
@@ -78,7 +78,7 @@ impl Gather {
 pub struct HalfFibers {
     /// Per fiber, its slot if it is primary, else `usize::MAX`.
     slot: Vec<usize>,
-    /// Per fiber, the fiber holding the negatives of its frequencies.
+    /// Per fiber, [`Lattice::mirror_fiber`].
     mirror: Vec<usize>,
     /// `slot[f] = f` for every fiber: the whole layout that
     /// [`Symmetry::gather_local`] indexes, which [`HalfFibers::gather`]
@@ -91,10 +91,10 @@ pub struct HalfFibers {
 impl HalfFibers {
     pub fn new(lattice: &Lattice) -> HalfFibers {
         let count = lattice.fiber_count();
-        let mirror: Vec<usize> = (0..count).map(|f| lattice.fiber_of(lattice.neg(lattice.fiber_rep(f)))).collect();
+        let mirror: Vec<usize> = (0..count).map(|f| lattice.mirror_fiber(f)).collect();
         let mut next = 0;
         let slot = (0..count)
-            .map(|f| match f <= mirror[f] {
+            .map(|f| match lattice.is_primary(f) {
                 true => {
                     next += 1;
                     next - 1

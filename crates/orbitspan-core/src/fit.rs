@@ -729,11 +729,9 @@ pub(crate) fn solve_orbit(
         } else if let Some((real, ..)) = &untwisted {
             // In the block's real basis `B'`: eigenvectors `u` of `B'ᵀ C' B'`
             // (real); the vectors are `S (B' u)`, made below.
-            let (eigenvalues, vectors) = eigen::symmetric(sparse[index].compress_real(real));
-            Eigen { eigenvalues, eigenvectors: vectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(vectors) }
+            real_eigen(sparse[index].compress_real(real))
         } else if let Some((gram, ..)) = &untwisted_gram {
-            let (eigenvalues, vectors) = eigen::symmetric(gram.clone());
-            Eigen { eigenvalues, eigenvectors: vectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(vectors) }
+            real_eigen(gram.clone())
         } else if whole {
             hermitian_eigen(x.clone())
         } else if let Some((_, g)) = block_grams.get(index) {
@@ -972,6 +970,13 @@ struct Eigen {
 fn hermitian_eigen(c: DMatrix<Complex64>) -> Eigen {
     let (eigenvalues, eigenvectors) = eigen::hermitian(c);
     Eigen { eigenvalues, eigenvectors, untwisted: None }
+}
+
+/// The eigen-decomposition of a real symmetric matrix, its real
+/// eigenvectors kept too (as [`untwisted_eigen`] with `S = I`).
+fn real_eigen(real: DMatrix<f64>) -> Eigen {
+    let (eigenvalues, vectors) = eigen::symmetric(real);
+    Eigen { eigenvalues, eigenvectors: vectors.map(|v| Complex64::new(v, 0.0)), untwisted: Some(vectors) }
 }
 
 /// The eigen-decomposition of `C = S C' Sᴴ` from the real symmetric `C'`

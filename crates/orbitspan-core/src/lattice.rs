@@ -128,6 +128,18 @@ impl Lattice {
         }
     }
 
+    /// The fiber holding `−ξ` for the `ξ` of fiber `id` (its mirror).
+    pub fn mirror_fiber(&self, id: usize) -> usize {
+        self.fiber_of(self.neg(self.fiber_rep(id)))
+    }
+
+    /// Whether fiber `id` is the *primary* one of its mirror couple: the
+    /// smaller index (a fiber that is its own mirror is primary). The
+    /// spectra of real images are kept at primary fibers only.
+    pub fn is_primary(&self, id: usize) -> bool {
+        id <= self.mirror_fiber(id)
+    }
+
     /// The canonical representative of fiber `id`: the inverse of
     /// [`Lattice::fiber_of`] on the fundamental domain.
     pub fn fiber_rep(&self, id: usize) -> Freq {

@@ -26,15 +26,10 @@ pub(crate) fn pair_points(orbits: &[Orbit], pair: &[usize]) -> Vec<usize> {
     pair.iter().flat_map(|&o| orbits[o].points.iter().map(|&(fiber, _)| fiber)).collect()
 }
 
-/// The fiber holding `−ξ` for the fibers holding `ξ`.
-fn mirror(sym: &Symmetry, fiber: usize) -> usize {
-    let l = sym.lattice();
-    l.fiber_of(l.neg(l.fiber_rep(fiber)))
-}
-
-/// Per point of the pair (slot order), whether it is primary.
+/// Per point of the pair (slot order), whether it is primary
+/// ([`crate::lattice::Lattice::is_primary`]).
 pub(crate) fn primary(sym: &Symmetry, points: &[usize]) -> Vec<bool> {
-    points.iter().map(|&f| f <= mirror(sym, f)).collect()
+    points.iter().map(|&f| sym.lattice().is_primary(f)).collect()
 }
 
 /// Values per image that a pair keeps: `d` per primary point.
@@ -178,7 +173,7 @@ pub(crate) fn expand(sym: &Symmetry, orbits: &[Orbit], pair: &[usize], kept: &[C
             source.extend((0..d).map(|k| (rank[j] * d + k, false)));
             continue;
         }
-        let m = mirror(sym, f);
+        let m = l.mirror_fiber(f);
         let jm = points
             .iter()
             .position(|&g| g == m)
