@@ -47,33 +47,69 @@ impl Monomial {
 /// dimension `s` and the multiplicity `m` (`dim W = m s`).
 #[derive(Clone, Debug)]
 pub struct Block {
-    pub basis: DMatrix<Complex64>,
+    pub basis: SparseBasis,
     pub type_dim: usize,
     pub multiplicity: usize,
 }
 
 impl Block {
-    /// The basis's nonzero entries column by column (see [`SparseBasis`]).
+    /// The basis (see [`SparseBasis`]).
     pub fn sparse(&self) -> SparseBasis {
-        let columns = self
-            .basis
-            .column_iter()
-            .map(|c| c.iter().enumerate().filter(|(_, v)| **v != Complex64::new(0.0, 0.0)).map(|(r, &v)| (r, v)).collect())
-            .collect();
-        SparseBasis { rows: self.basis.nrows(), columns }
+        self.basis.clone()
     }
 }
 
 /// A block's basis `B` by its nonzero entries. Each basis vector is made on
 /// one orbit of the group on the coordinates (at most `|H|` of them, see
 /// [`isotypic_blocks`]) and is zero elsewhere, so products with `B` cost
-/// `|H|` (or `|H|²`) operations per entry instead of `n`.
+/// `|H|` (or `|H|²`) operations per entry instead of `n`, and the basis of
+/// a block holds about `|H| dim W` numbers, not `n dim W`.
+#[derive(Clone, Debug)]
 pub struct SparseBasis {
     rows: usize,
     columns: Vec<Vec<(usize, Complex64)>>,
 }
 
 impl SparseBasis {
+    /// The identity of `C^n`.
+    fn identity(n: usize) -> SparseBasis {
+        SparseBasis { rows: n, columns: (0..n).map(|a| vec![(a, Complex64::new(1.0, 0.0))]).collect() }
+    }
+    /// The number of basis vectors.
+    pub fn dim(&self) -> usize {
+        self.columns.len()
+    }
+    /// The basis as a dense `n x dim` matrix (for tests and small cases).
+    pub fn to_dense(&self) -> DMatrix<Complex64> {
+        let mut out = DMatrix::zeros(self.rows, self.columns.len());
+        for (c, entries) in self.columns.iter().enumerate() {
+            for &(a, v) in entries {
+                out[(a, c)] = v;
+            }
+        }
+        out
+    }
+    /// Divides each basis vector by the phase of its largest entry, so a
+    /// vector that is a real vector times a phase becomes real; `false`
+    /// (the basis then partly changed) when an entry keeps an imaginary
+    /// part above `tol`. The imaginary parts left (at most `tol`) are set
+    /// to zero.
+    pub fn make_real(&mut self, tol: f64) -> bool {
+        for entries in &mut self.columns {
+            let Some(largest) = entries.iter().map(|e| e.1).max_by(|a, b| a.norm().total_cmp(&b.norm())) else {
+                continue;
+            };
+            let unphase = largest.conj() / largest.norm();
+            for (_, v) in entries.iter_mut() {
+                let z = *v * unphase;
+                if z.im.abs() > tol {
+                    return false;
+                }
+                *v = Complex64::new(z.re, 0.0);
+            }
+        }
+        true
+    }
     /// `Bᴴ X B` for an `n x n` matrix `X`.
     pub fn compress(&self, x: &DMatrix<Complex64>) -> DMatrix<Complex64> {
         let k = self.columns.len();
@@ -109,6 +145,19 @@ impl SparseBasis {
     /// not read).
     pub fn expand_real(&self, c: &DMatrix<f64>) -> DMatrix<f64> {
         self.expand_by(c, |u| u.re)
+    }
+    /// `Bᵀ U` for a real `U` (`n` rows) and a basis with real entries
+    /// (imaginary parts not read): row `i` combines the rows of `U` that
+    /// basis vector `i` holds.
+    pub fn adjoint_times_real(&self, u: &DMatrix<f64>) -> DMatrix<f64> {
+        assert_eq!(u.nrows(), self.rows, "Bᵀ U needs U with {} rows", self.rows);
+        let mut out = DMatrix::zeros(self.columns.len(), u.ncols());
+        for (c, column) in u.column_iter().enumerate() {
+            for (i, entries) in self.columns.iter().enumerate() {
+                out[(i, c)] = entries.iter().map(|&(a, w)| w.re * column[a]).sum();
+            }
+        }
+        out
     }
     /// `Y B` for `Y = A + iB` given by its real and imaginary parts
     /// (`n` rows each), returned the same way.
@@ -156,7 +205,7 @@ impl SparseBasis {
 /// with a few fixed retries if an integrality check fails.
 pub fn isotypic_blocks(n: usize, ops: &[Monomial]) -> Result<Vec<Block>> {
     if ops.len() <= 1 {
-        return Ok(vec![Block { basis: DMatrix::identity(n, n), type_dim: 1, multiplicity: n }]);
+        return Ok(vec![Block { basis: SparseBasis::identity(n), type_dim: 1, multiplicity: n }]);
     }
     let mut last = String::new();
     for attempt in 0..6u64 {
@@ -248,14 +297,13 @@ fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<V
             _ => clusters.push(vec![i]),
         }
     }
-    let eig_vectors = |c: &[usize]| {
-        let mut basis = DMatrix::<Complex64>::zeros(n, c.len());
-        for (col, &i) in c.iter().enumerate() {
-            for (&r, &v) in orbits[pairs[i].1].iter().zip(&pairs[i].2) {
-                basis[(r, col)] = v;
-            }
-        }
-        basis
+    // Each eigenvector lives on its coordinate orbit: its nonzero entries.
+    let eig_vectors = |c: &[usize]| SparseBasis {
+        rows: n,
+        columns: c
+            .iter()
+            .map(|&i| orbits[pairs[i].1].iter().zip(&pairs[i].2).filter(|(_, v)| **v != Complex64::new(0.0, 0.0)).map(|(&r, &v)| (r, v)).collect())
+            .collect(),
     };
     let mut blocks = Vec::with_capacity(clusters.len());
     let mut covered = 0;
@@ -263,10 +311,13 @@ fn try_blocks(n: usize, ops: &[Monomial], attempt: u64) -> std::result::Result<V
         let basis = eig_vectors(&c);
         let mut sum_sq = 0.0;
         for op in ops {
+            // χ(h) = Σ_k b_kᴴ U_h b_k, with b_k read on its coordinate
+            // orbit (which U_h maps to itself).
             let mut chi = Complex64::new(0.0, 0.0);
-            for k in 0..c.len() {
-                for r in 0..n {
-                    chi += basis[(r, k)].conj() * op.phase[r] * basis[(op.perm[r], k)];
+            for &i in &c {
+                let (orbit, v) = (&orbits[pairs[i].1], &pairs[i].2);
+                for (j, &r) in orbit.iter().enumerate() {
+                    chi += v[j].conj() * op.phase[r] * v[position[op.perm[r]]];
                 }
             }
             sum_sq += chi.norm_sqr();
@@ -328,8 +379,9 @@ mod tests {
                 let blocks = isotypic_blocks(n, &ops).unwrap();
                 let mut sum = DMatrix::<Complex64>::zeros(n, n);
                 for b in &blocks {
-                    assert_eq!(b.basis.ncols(), b.type_dim * b.multiplicity);
-                    let p = &b.basis * b.basis.adjoint();
+                    assert_eq!(b.basis.dim(), b.type_dim * b.multiplicity);
+                    let basis = b.basis.to_dense();
+                    let p = &basis * basis.adjoint();
                     for op in &ops {
                         let u = op.to_dense();
                         assert!((&p * &u - &u * &p).norm() < 1e-9, "{symbol:?} at {:?}: not invariant", orbit.rep);
@@ -359,17 +411,26 @@ mod tests {
                 for b in isotypic_blocks(n, &ops).unwrap() {
                     let sparse = b.sparse();
                     assert!(sparse.columns.iter().all(|c| !c.is_empty() && c.len() <= ops.len()), "{symbol:?}: a basis vector on more than |H| coordinates");
+                    let basis = b.basis.to_dense();
                     let x = random(n, n);
-                    let dense = b.basis.adjoint() * &x * &b.basis;
+                    let dense = basis.adjoint() * &x * &basis;
                     assert!((sparse.compress(&x) - &dense).norm() < 1e-12 * dense.norm(), "{symbol:?} at {:?}: compress", orbit.rep);
-                    let c = random(b.basis.ncols(), 3);
-                    let dense = &b.basis * &c;
+                    let c = random(basis.ncols(), 3);
+                    let dense = &basis * &c;
                     assert!((sparse.expand(&c) - &dense).norm() < 1e-12 * dense.norm(), "{symbol:?} at {:?}: expand", orbit.rep);
                     let y = random(5, n);
-                    let dense = &y * &b.basis;
+                    let dense = &y * &basis;
                     let (re, im) = sparse.times_parts(&y.map(|z| z.re), &y.map(|z| z.im));
                     let got = re.zip_map(&im, Complex64::new);
                     assert!((got - &dense).norm() < 1e-12 * dense.norm(), "{symbol:?} at {:?}: times_parts", orbit.rep);
+                    // The real forms read the real parts of the basis only.
+                    let real_basis = basis.map(|z| z.re);
+                    let u = random(n, 4).map(|z| z.re);
+                    let dense = real_basis.transpose() * &u;
+                    assert!((sparse.adjoint_times_real(&u) - &dense).norm() < 1e-12 * dense.norm(), "{symbol:?} at {:?}: adjoint_times_real", orbit.rep);
+                    let c = random(basis.ncols(), 3).map(|z| z.re);
+                    let dense = &real_basis * &c;
+                    assert!((sparse.expand_real(&c) - &dense).norm() < 1e-12 * dense.norm(), "{symbol:?} at {:?}: expand_real", orbit.rep);
                     checked += 1;
                 }
             }

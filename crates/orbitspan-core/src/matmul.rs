@@ -47,6 +47,12 @@ impl<'a> Part<'a> {
         self.rows = self.rows.start + rows.start..self.rows.start + rows.end;
         self
     }
+    /// Columns `cols` of this block (of the untransposed matrix).
+    pub fn cols(mut self, cols: Range<usize>) -> Part<'a> {
+        assert!(cols.end <= self.cols.len(), "columns {cols:?} of a block of {}", self.cols.len());
+        self.cols = self.cols.start + cols.start..self.cols.start + cols.end;
+        self
+    }
     /// Rows `range` of `op(M[rows, cols])` (columns of the block when it
     /// is transposed).
     pub fn op_rows(mut self, range: Range<usize>) -> Part<'a> {
@@ -219,11 +225,12 @@ mod tests {
                 for (ta, tb) in [(false, false), (true, false), (false, true), (true, true)] {
                     for accumulate in [false, true] {
                         let extra = 2;
-                        let a_src = if ta { random(&mut rng, k + extra, m) } else { random(&mut rng, m + extra, k) };
+                        // One column more, the block starting at column 1.
+                        let a_src = if ta { random(&mut rng, k + extra, m + 1) } else { random(&mut rng, m + extra, k + 1) };
                         let b_src = random(&mut rng, if tb { n + extra } else { k + extra }, if tb { k } else { n });
                         // Row blocks of row blocks: offset 1 + 1.
-                        let a_rows = if ta { k } else { m };
-                        let mut a = Part::of(&a_src).rows(1..2 + a_rows).rows(1..1 + a_rows);
+                        let (a_rows, a_cols) = if ta { (k, m) } else { (m, k) };
+                        let mut a = Part::of(&a_src).rows(1..2 + a_rows).rows(1..1 + a_rows).cols(1..1 + a_cols);
                         if ta {
                             a = a.t();
                         }
@@ -241,7 +248,7 @@ mod tests {
                                     false => before[(i, j)],
                                     true => {
                                         // From the sources and the offsets, not from the blocks.
-                                        let a_at = |i: usize, l: usize| if ta { a_src[(2 + l, i)] } else { a_src[(2 + i, l)] };
+                                        let a_at = |i: usize, l: usize| if ta { a_src[(2 + l, 1 + i)] } else { a_src[(2 + i, 1 + l)] };
                                         let b_at = |l: usize, j: usize| if tb { b_src[(j, l)] } else { b_src[(2 + l, j)] };
                                         let dot: f64 = (0..k).map(|l| a_at(i - 2, l) * b_at(l, j - 1)).sum();
                                         0.5 * dot + if accumulate { before[(i, j)] } else { 0.0 }
