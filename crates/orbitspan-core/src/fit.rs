@@ -56,6 +56,7 @@ pub struct Fit {
 
 /// Per-orbit result: captured energy per layer, the energy beyond the last
 /// layer, and an orthonormal basis of each layer's fiber at `ξ0`.
+#[derive(Clone)]
 pub(crate) struct OrbitSolution {
     pub layer_energy: Vec<f64>,
     pub tail: f64,
@@ -63,6 +64,11 @@ pub(crate) struct OrbitSolution {
     /// Per image, the energy its fibers on this orbit keep outside all
     /// `lmax` layers (spectrum units: divide by `|T|`).
     pub image_discarded: Vec<f64>,
+    /// `S` when every layer's basis is `S Z` with `Z` real and `S`
+    /// diagonal and unimodular (an untwisted orbit: see
+    /// [`untwisted_covariance`] and [`UntwistedGram`]), so that products
+    /// with the layers can be made in real arithmetic.
+    pub twist: Option<Vec<Complex64>>,
 }
 
 /// Checks settings against an image size without fitting: the same errors
@@ -869,8 +875,9 @@ pub(crate) fn solve_orbit(
     // that level. Otherwise through the complement (the eigenvectors not
     // kept) when it is the smaller space and known (covariance path), else
     // energy minus the captured part.
+    let twist = untwisted.as_ref().map(|u| u.1.clone()).or_else(|| untwisted_gram.as_ref().map(|g| g.s.clone()));
     if left_out <= tol {
-        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded: vec![0.0; m] });
+        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded: vec![0.0; m], twist });
     }
     // With the untwisted decomposition every eigenvector `e = S u` (`u`
     // real; `u = B' c` with a stabiliser) is fixed by `J v = D conj(v)`, so the projector onto the kept
@@ -894,7 +901,7 @@ pub(crate) fn solve_orbit(
         let basis = if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) };
         let discard = if complement { Discard::Complement(basis) } else { Discard::Captured(basis) };
         let image_discarded = per_image_discarded_untwisted(primary, spectra, s, &discard).into_iter().map(|e| 2.0 * e).collect();
-        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded });
+        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded, twist });
     }
     // The real Gram path's vectors are `S z` with `z` real too: the same
     // way, with the real layers as the kept space's basis.
@@ -902,7 +909,7 @@ pub(crate) fn solve_orbit(
         let columns: Vec<DVector<f64>> = real_layers.iter().flat_map(|q| q.column_iter().map(|c| c.into_owned())).collect();
         let basis = if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) };
         let image_discarded = per_image_discarded_untwisted(&g.primary, spectra, &g.s, &Discard::Captured(basis)).into_iter().map(|e| 2.0 * e).collect();
-        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded });
+        return Ok(OrbitSolution { layer_energy, tail, layers, image_discarded, twist });
     }
     let discard = if y.is_none() && untwisted_gram.is_none() && d - kept_count < kept_count {
         let mut columns = Vec::with_capacity(d - kept_count);
@@ -925,7 +932,7 @@ pub(crate) fn solve_orbit(
         Discard::Captured(if columns.is_empty() { DMatrix::zeros(d, 0) } else { DMatrix::from_columns(&columns) })
     };
     let image_discarded = per_image_discarded(&point_gathers, spectra, &discard);
-    Ok(OrbitSolution { layer_energy, tail, layers, image_discarded })
+    Ok(OrbitSolution { layer_energy, tail, layers, image_discarded, twist })
 }
 
 /// Vectors of length `d` as the columns of a matrix (`d x 0` for none).

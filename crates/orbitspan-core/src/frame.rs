@@ -25,6 +25,7 @@ use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, HalfFibers, Orbit, Symmetry};
 use crate::fit::{adjoint_product_parts, from_group_frame, product_parts, split, OrbitSolution};
+use crate::matmul::{self, Part};
 use crate::pair_fibers;
 use crate::prng::SplitMix64;
 use crate::spectrum::{half_width, ifft2_half_real, negative_index};
@@ -121,10 +122,76 @@ fn top_power(gram: DMatrix<Complex64>, k: usize, power: f64) -> (DMatrix<Complex
 /// `YᴴY = Cᴴ C` for orthonormal `Q`: two `d`-long products per layer
 /// (`C = Qᴴx`, made by the caller, and `Q (C N)`) instead of five.
 /// The conditioning is read from the same eigenvalues.
-fn free_orbit_generator(d: usize, q: &(DMatrix<f64>, DMatrix<f64>), k: usize, c: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
+fn free_orbit_generator(d: usize, q: &LayerBasis, k: usize, c: &DMatrix<Complex64>) -> (DMatrix<Complex64>, f64) {
     let (n, ratio) = top_power(c.adjoint() * c, k, -0.5);
-    let phi = product_parts(&q.0, &q.1, &(c * n)) * Complex64::new((d as f64).sqrt(), 0.0);
+    let phi = q.times(&(c * n)) * Complex64::new((d as f64).sqrt(), 0.0);
     (phi, ratio)
+}
+
+/// One layer's orthonormal basis `Q` made ready for the products `Qᴴ x`
+/// and `Q w`: its real and imaginary parts (four real products each), or,
+/// when `Q = S Z` with `Z` real and `S` diagonal and unimodular (see
+/// [`OrbitSolution::twist`]), `Z` and `S`: then `Qᴴ x = Zᵀ (Sᴴ x)` and
+/// `Q w = S (Z w)`, one real product each, with the real and imaginary
+/// parts of `Sᴴ x` (or `w`) side by side.
+enum LayerBasis<'a> {
+    Parts(DMatrix<f64>, DMatrix<f64>),
+    Untwisted(DMatrix<f64>, &'a [Complex64]),
+}
+
+impl<'a> LayerBasis<'a> {
+    fn new(q: &DMatrix<Complex64>, twist: Option<&'a [Complex64]>) -> LayerBasis<'a> {
+        match twist {
+            // `Sᴴ Q` is real up to round-off; its real part is `Z`.
+            Some(s) => LayerBasis::Untwisted(DMatrix::from_fn(q.nrows(), q.ncols(), |a, c| (s[a].conj() * q[(a, c)]).re), s),
+            None => {
+                let (re, im) = split(q);
+                LayerBasis::Parts(re, im)
+            }
+        }
+    }
+    /// `Qᴴ x`.
+    fn adjoint_times(&self, x: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+        match self {
+            LayerBasis::Parts(a, b) => adjoint_product_parts(a, b, x),
+            LayerBasis::Untwisted(z, s) => {
+                let w = side_by_side_parts(x, |a, v| s[a].conj() * v);
+                joined_parts(&matmul::mul(1.0, Part::of(z).t(), Part::of(&w)))
+            }
+        }
+    }
+    /// `Q w`.
+    fn times(&self, w: &DMatrix<Complex64>) -> DMatrix<Complex64> {
+        match self {
+            LayerBasis::Parts(a, b) => product_parts(a, b, w),
+            LayerBasis::Untwisted(z, s) => {
+                let zw = joined_parts(&matmul::mul(1.0, Part::of(z), Part::of(&side_by_side_parts(w, |_, v| v))));
+                DMatrix::from_fn(zw.nrows(), zw.ncols(), |a, c| s[a] * zw[(a, c)])
+            }
+        }
+    }
+}
+
+/// `[Re f(x) | Im f(x)]` for a complex `x` (`n x c` gives `n x 2c`), `f`
+/// applied to each entry with its row.
+fn side_by_side_parts(x: &DMatrix<Complex64>, f: impl Fn(usize, Complex64) -> Complex64) -> DMatrix<f64> {
+    let c = x.ncols();
+    let mut out = DMatrix::zeros(x.nrows(), 2 * c);
+    for j in 0..c {
+        for (a, &v) in x.column(j).iter().enumerate() {
+            let z = f(a, v);
+            out[(a, j)] = z.re;
+            out[(a, c + j)] = z.im;
+        }
+    }
+    out
+}
+
+/// The complex matrix whose real and imaginary parts lie side by side in
+/// `m` (the inverse of [`side_by_side_parts`]).
+fn joined_parts(m: &DMatrix<f64>) -> DMatrix<Complex64> {
+    let c = m.ncols() / 2;
+    DMatrix::from_fn(m.nrows(), c, |a, j| Complex64::new(m[(a, j)], m[(a, c + j)]))
 }
 
 /// `Wᴴ W` for a tall, narrow `W` (a few columns): one inner product per
@@ -438,8 +505,8 @@ fn orbit_generators_by(
             Some(f) => vec![f[layer]],
             None => (0..REFERENCES).collect(),
         };
-        // The layer's basis split once for all its products.
-        let parts = split(q);
+        // The layer's basis made ready once for all its products.
+        let basis = LayerBasis::new(q, sol.twist.as_deref());
         let mut best: Option<(u64, DMatrix<Complex64>, f64)> = None;
         for c in candidates {
             // ψ = P_{D_l} e on this orbit: transport each point to ξ0,
@@ -451,11 +518,11 @@ fn orbit_generators_by(
                 }
                 x
             });
-            let coefficients = adjoint_product_parts(&parts.0, &parts.1, x);
+            let coefficients = basis.adjoint_times(x);
             let (fibers, worst) = if free {
-                free_orbit_generator(d, &parts, k, &coefficients)
+                free_orbit_generator(d, &basis, k, &coefficients)
             } else {
-                let y = product_parts(&parts.0, &parts.1, &coefficients);
+                let y = basis.times(&coefficients);
                 for (j, t) in local_transports.iter().enumerate() {
                     t.scatter(y.column(j).as_slice(), &mut psi);
                 }
@@ -625,20 +692,36 @@ mod tests {
             let mut compared = 0;
             for orbit in sym.orbits().iter().filter(|o| o.stabiliser.len() == 1) {
                 let r = orbit.points.len();
-                let layers: Vec<DMatrix<Complex64>> = [1, 2.min(r), r]
-                    .iter()
-                    .map(|&k| {
-                        let a = DMatrix::from_fn(d, k.min(d), |_, _| Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0)));
-                        a.qr().q()
-                    })
-                    .collect();
-                let sol = OrbitSolution { layer_energy: vec![0.0; 3], tail: 0.0, layers, image_discarded: Vec::new() };
-                let fast = orbit_generators_by(&sym, orbit, &sol, 3, None, &references, true).unwrap();
-                let general = orbit_generators_by(&sym, orbit, &sol, 3, None, &references, false).unwrap();
-                for (l, (a, b)) in fast.iter().zip(&general).enumerate() {
-                    assert_eq!(a.0, b.0, "{symbol:?} at {:?} layer {l}: reference", orbit.rep);
-                    let err = (&a.1 - &b.1).norm();
-                    assert!(b.1.norm() > 0.1 && err < 1e-10 * b.1.norm(), "{symbol:?} at {:?} layer {l}: {err} of {}", orbit.rep, b.1.norm());
+                // Complex layers, and layers `S Z` (`Z` real) with their twist
+                // `S` given: then the products are made in real arithmetic,
+                // on the shortcut and on the general way, against the general
+                // way with the complex products.
+                let s: Vec<Complex64> = (0..d).map(|_| Complex64::from_polar(1.0, rng.between(-3.2, 3.2))).collect();
+                for twisted in [false, true] {
+                    let layers: Vec<DMatrix<Complex64>> = [1, 2.min(r), r]
+                        .iter()
+                        .map(|&k| match twisted {
+                            false => DMatrix::from_fn(d, k.min(d), |_, _| Complex64::new(rng.between(-1.0, 1.0), rng.between(-1.0, 1.0))).qr().q(),
+                            true => {
+                                let z = DMatrix::from_fn(d, k.min(d), |_, _| rng.between(-1.0, 1.0)).qr().q();
+                                DMatrix::from_fn(d, z.ncols(), |a, c| s[a] * z[(a, c)])
+                            }
+                        })
+                        .collect();
+                    let plain = OrbitSolution { layer_energy: vec![0.0; 3], tail: 0.0, layers, image_discarded: Vec::new(), twist: None };
+                    let sol = OrbitSolution { twist: twisted.then(|| s.clone()), ..plain.clone() };
+                    let general = orbit_generators_by(&sym, orbit, &plain, 3, None, &references, false).unwrap();
+                    let mut ways = vec![orbit_generators_by(&sym, orbit, &sol, 3, None, &references, true).unwrap()];
+                    if twisted {
+                        ways.push(orbit_generators_by(&sym, orbit, &sol, 3, None, &references, false).unwrap());
+                    }
+                    for way in ways {
+                        for (l, (a, b)) in way.iter().zip(&general).enumerate() {
+                            assert_eq!(a.0, b.0, "{symbol:?} at {:?} layer {l}: reference", orbit.rep);
+                            let err = (&a.1 - &b.1).norm();
+                            assert!(b.1.norm() > 0.1 && err < 1e-10 * b.1.norm(), "{symbol:?} at {:?} layer {l} ({twisted}): {err} of {}", orbit.rep, b.1.norm());
+                        }
+                    }
                 }
                 compared += 1;
             }
