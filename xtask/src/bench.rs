@@ -8,7 +8,10 @@
 //! `browser.json`); then run the benchmark, which also times the native fit
 //! of the same files and prints every ratio. Writes `target/bench/bench.md`
 //! and `bench.json`. Without Chromium or the npm packages (or with
-//! `--no-browser`) the browser step is skipped and the table says so.
+//! `--no-browser`) the browser step is skipped and the table says so; such
+//! a run, like one with `--only` or `--quick`, writes `bench-partial.md`
+//! and `bench-partial.json` instead, so that the whole table is not
+//! overwritten by part of it.
 
 use crate::serve::Server;
 use crate::{browser_bundle, run_command, workspace_root, Result};

@@ -10,7 +10,8 @@
 //! writes the workloads as image files and stops; `--browser DIR` also times
 //! the native fit of the stacks decoded from those files and sets it against
 //! `DIR/browser.json` (see [`files`]). Writes `target/bench/bench.md` and
-//! `target/bench/bench.json`. Timings are medians over interleaved
+//! `target/bench/bench.json`, or, for a partial run (`--only`, `--quick`,
+//! or without `--browser`), `bench-partial.md` and `bench-partial.json`. Timings are medians over interleaved
 //! repetitions in one process; the table reports ratios measured in the same
 //! run, since absolute times on a shared machine are noisy.
 
@@ -507,19 +508,44 @@ fn main() {
         browser,
         browser_note,
     };
-    let md = table(&results);
+    // A run that leaves workloads out or shrinks them writes beside the
+    // whole table, not over it, and says so, so that its rows are not
+    // taken for the whole table.
+    let partial = partial_run(&options);
+    let name = if partial.is_some() { "bench-partial" } else { "bench" };
+    let md = match &partial {
+        Some(what) => format!("Partial run ({what}): not the whole table.\n\n{}", table(&results)),
+        None => table(&results),
+    };
     print!("{md}");
     let dir = target_dir().join("bench");
+    let (md_path, json_path) = (dir.join(format!("{name}.md")), dir.join(format!("{name}.json")));
     let written = std::fs::create_dir_all(&dir)
-        .and_then(|_| std::fs::write(dir.join("bench.md"), &md))
-        .and_then(|_| std::fs::write(dir.join("bench.json"), serde_json::to_string_pretty(&results).expect("results serialise")));
+        .and_then(|_| std::fs::write(&md_path, &md))
+        .and_then(|_| std::fs::write(&json_path, serde_json::to_string_pretty(&results).expect("results serialise")));
     match written {
-        Ok(()) => eprintln!("wrote {} and bench.json", dir.join("bench.md").display()),
+        Ok(()) => eprintln!("wrote {} and {}", md_path.display(), json_path.display()),
         Err(e) => {
             eprintln!("orbitspan-bench: could not write {}: {e}", dir.display());
             std::process::exit(1);
         }
     }
+}
+
+/// What makes a run partial (`--only`, `--quick`, no `--browser`), or
+/// `None` for the whole benchmark.
+fn partial_run(options: &Options) -> Option<String> {
+    let mut what = Vec::new();
+    if let Some(only) = &options.only {
+        what.push(format!("--only {}", only.join(",")));
+    }
+    if options.quick {
+        what.push("--quick".to_string());
+    }
+    if options.browser.is_none() {
+        what.push("no browser side".to_string());
+    }
+    (!what.is_empty()).then(|| what.join(", "))
 }
 
 /// `$CARGO_TARGET_DIR` or `<workspace>/target`.
