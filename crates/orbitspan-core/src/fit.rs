@@ -689,7 +689,7 @@ pub(crate) fn solve_orbit(
     // A trivial stabiliser gives one block with the identity as basis;
     // otherwise each block's basis by its nonzero entries, made once.
     let whole = blocks.len() == 1 && ops.len() <= 1;
-    let sparse: Vec<SparseBasis> = if whole { Vec::new() } else { blocks.iter().map(Block::sparse).collect() };
+    let sparse: Vec<&SparseBasis> = if whole { Vec::new() } else { blocks.iter().map(|b| &b.basis).collect() };
     // Real Gram path, per block: `X = B'ᵀ U` (`U` itself for a trivial
     // stabiliser) and `XᵀX` by its lower block triangle (three quarters of
     // the products).

@@ -52,13 +52,6 @@ pub struct Block {
     pub multiplicity: usize,
 }
 
-impl Block {
-    /// The basis (see [`SparseBasis`]).
-    pub fn sparse(&self) -> SparseBasis {
-        self.basis.clone()
-    }
-}
-
 /// A block's basis `B` by its nonzero entries. Each basis vector is made on
 /// one orbit of the group on the coordinates (at most `|H|` of them, see
 /// [`isotypic_blocks`]) and is zero elsewhere, so products with `B` cost
@@ -409,7 +402,7 @@ mod tests {
                 let ops: Vec<Monomial> = orbit.stabiliser.iter().map(|&h| sym.fiber_unitary(orbit.rep, h).unwrap()).collect();
                 let n = ops[0].perm.len();
                 for b in isotypic_blocks(n, &ops).unwrap() {
-                    let sparse = b.sparse();
+                    let sparse = &b.basis;
                     assert!(sparse.columns.iter().all(|c| !c.is_empty() && c.len() <= ops.len()), "{symbol:?}: a basis vector on more than |H| coordinates");
                     let basis = b.basis.to_dense();
                     let x = random(n, n);
