@@ -11,9 +11,10 @@
 //! the native fit of the stacks decoded from those files and sets it against
 //! `DIR/browser.json` (see [`files`]). Writes `target/bench/bench.md` and
 //! `target/bench/bench.json`, or, for a partial run (`--only`, `--quick`,
-//! or without `--browser`), `bench-partial.md` and `bench-partial.json`. Timings are medians over interleaved
-//! repetitions in one process; the table reports ratios measured in the same
-//! run, since absolute times on a shared machine are noisy.
+//! or without `--browser`), `bench-partial.md` and `bench-partial.json`.
+//! Timings are medians over interleaved repetitions in one process; the
+//! table reports ratios measured in the same run, since absolute times on a
+//! shared machine are noisy.
 
 #[path = "../../orbitspan-core/tests/support/dense.rs"]
 mod dense;
