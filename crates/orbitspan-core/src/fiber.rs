@@ -131,12 +131,9 @@ impl HalfFibers {
             g.index.iter_mut().for_each(|i| *i = base + *i % d);
             return (g, false);
         }
-        let m = self.mirror[f];
-        let (rep, mirror_rep, base) = (l.fiber_rep(f), l.fiber_rep(m), self.slot[m] * d);
-        for i in g.index.iter_mut() {
-            let minus = l.neg(l.add(rep, self.dual[*i % d]));
-            *i = base + l.dual_index(l.sub(minus, mirror_rep)).expect("the mirror fiber holds the negated frequencies");
-        }
+        let base = self.slot[self.mirror[f]] * d;
+        let positions = l.mirror_positions(f, &self.dual).expect("the mirror fiber holds the negated frequencies");
+        g.index.iter_mut().for_each(|i| *i = base + positions[*i % d]);
         (g, true)
     }
 }

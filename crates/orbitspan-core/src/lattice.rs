@@ -133,6 +133,16 @@ impl Lattice {
         self.fiber_of(self.neg(self.fiber_rep(id)))
     }
 
+    /// For each value of fiber `id` (`ξ = rep(id) + η_k`, `η_k` the `k`-th
+    /// of `dual`, [`Lattice::dual`]), the position of `−ξ` in the mirror
+    /// fiber ([`Lattice::mirror_fiber`]): where a real image's spectrum
+    /// kept at the mirror fiber holds `conj f̂(ξ)`. `None` if `dual` is not
+    /// this lattice's.
+    pub fn mirror_positions(&self, id: usize, dual: &[Freq]) -> Option<Vec<usize>> {
+        let (rep, mirror_rep) = (self.fiber_rep(id), self.fiber_rep(self.mirror_fiber(id)));
+        dual.iter().map(|&eta| self.dual_index(self.sub(self.neg(self.add(rep, eta)), mirror_rep))).collect()
+    }
+
     /// Whether fiber `id` is the *primary* one of its mirror couple: the
     /// smaller index (a fiber that is its own mirror is primary). The
     /// spectra of real images are kept at primary fibers only.
@@ -209,6 +219,13 @@ mod tests {
             }
         }
         assert!(count.iter().all(|&c| c == l.fiber_len()));
+        // each value's mirror position holds its negative frequency
+        for f in 0..l.fiber_count() {
+            let (m, positions) = (l.mirror_fiber(f), l.mirror_positions(f, &dual).unwrap());
+            for (k, &eta) in dual.iter().enumerate() {
+                assert_eq!(l.add(l.fiber_rep(m), dual[positions[k]]), l.neg(l.add(l.fiber_rep(f), eta)), "fiber {f}, value {k}");
+            }
+        }
     }
 
     #[test]

@@ -178,14 +178,8 @@ pub(crate) fn expand(sym: &Symmetry, orbits: &[Orbit], pair: &[usize], kept: &[C
             .iter()
             .position(|&g| g == m)
             .ok_or_else(|| Error::Internal(format!("orbit pair {pair:?}: the mirror of fiber {f} is not in the pair")))?;
-        let (rep, mirror_rep) = (l.fiber_rep(f), l.fiber_rep(m));
-        for &eta in &dual {
-            let minus = l.neg(l.add(rep, eta));
-            let k = l
-                .dual_index(l.sub(minus, mirror_rep))
-                .ok_or_else(|| Error::Internal(format!("fiber {m} does not hold the mirror of fiber {f}")))?;
-            source.push((rank[jm] * d + k, true));
-        }
+        let positions = l.mirror_positions(f, &dual).ok_or_else(|| Error::Internal(format!("fiber {m} does not hold the mirror of fiber {f}")))?;
+        source.extend(positions.into_iter().map(|k| (rank[jm] * d + k, true)));
     }
     Ok((0..images)
         .map(|i| {
