@@ -36,8 +36,11 @@
 //                                                 lattice: null | { lattice, grid, resampling_error,
 //                                                 image_deviation, cell_deviation, noise_level },
 //                                                 workers, solvedBy: null | [tasks solved here, by helper 1, ...],
-//                                                 timing: null | { begin, finish, tasks } seconds: before the
-//                                                 tasks, after them, and solving them summed over workers }
+//                                                 imagesBy: null | [generator images made here, by helper 1, ...],
+//                                                 timing: null | { begin, finish, tasks, handling } seconds:
+//                                                 before the tasks, after them, solving them (generator
+//                                                 tasks too) summed over workers, and making their bytes
+//                                                 and taking in their answers here }
 //   restore-report report                       null (the report of an earlier fit, after a restart)
 //   restore-lattice info                        null (the lattice of an earlier fit's model, after a restart)
 //   choose         count                        { model }
@@ -66,12 +69,14 @@
 //
 // Helpers. The same script serves as a helper worker: after 'serve' it only
 // answers on its port   { id, op: 'solve', bytes } -> { id, bytes, seconds }   (a
-// fit task's answer, wasm FitTaskSolver) and { id, op: 'memory' } -> { id, bytes },
+// fit task's or generator task's answer, wasm FitTaskSolver) and { id, op: 'memory' } -> { id, bytes },
 // or { id, error }. With helpers, a fit begins here (transforms, band,
 // tasks cut: Session.fitBegin), hands tasks out one by one (two in flight
 // per helper, so none waits while this worker computes), solves tasks here
-// too, and finishes here. Every task's answer is the same wherever it is
-// solved, so the fit is bit-identical to the fit in one worker.
+// too, then hands out the generator images the same way (one task per
+// generator: its inverse transform), and finishes here. Every task's
+// answer is the same wherever it is solved, so the fit is bit-identical to
+// the fit in one worker.
 
 import init, { Session, FitTaskSolver, residualLegend } from './pkg/orbitspan_wasm.js';
 
@@ -165,12 +170,12 @@ async function run(op, m, progress) {
       return session.survey(m.options, progress);
     case 'fit': {
       const start = performance.now();
-      const { report, solvedBy, timing } = helpers.length
+      const { report, solvedBy, imagesBy, timing } = helpers.length
         ? await fitSpread(m.settings, progress)
-        : { report: session.fit(m.settings, progress), solvedBy: null, timing: null };
+        : { report: session.fit(m.settings, progress), solvedBy: null, imagesBy: null, timing: null };
       const seconds = (performance.now() - start) / 1000;
       return {
-        report, seconds, workers: helpers.length + 1, solvedBy, timing,
+        report, seconds, workers: helpers.length + 1, solvedBy, imagesBy, timing,
         generators: session.generatorPictures(), model: session.modelInfo(), record: session.modelRecord(),
         lattice: session.latticeFit(),
       };
@@ -218,55 +223,83 @@ async function run(op, m, progress) {
   }
 }
 
-// A fit spread over this worker and the helpers (see the top of this file).
+// A fit spread over this worker and the helpers (see the top of this file):
+// first the orbit tasks, then the generator images, one task each.
 async function fitSpread(settings, progress) {
   const started = performance.now();
   const tasks = session.fitBegin(settings, progress);
   const begun = performance.now();
-  let taskSeconds = 0; // time spent solving tasks, summed over the workers
   solver ??= new FitTaskSolver();
+  // Time spent solving tasks, summed over the workers, and time this worker
+  // spent making tasks' bytes and taking in answers.
+  const work = { seconds: 0, handling: 0 };
+  try {
+    progress('fitting frequencies', 0);
+    const solvedBy = await spread(tasks, (k) => session.fitTask(k), 'fitting frequencies', progress, work);
+    const generators = session.fitGeneratorTasks();
+    progress('building generators', 0);
+    const imagesBy = await spread(generators, (l) => session.fitGeneratorTask(l), 'building generators', progress, work);
+    const solved = performance.now();
+    const report = session.fitFinish(progress);
+    const timing = {
+      begin: (begun - started) / 1000, finish: (performance.now() - solved) / 1000, tasks: work.seconds, handling: work.handling,
+    };
+    return { report, solvedBy, imagesBy, timing };
+  } catch (error) {
+    session.fitAbort();
+    throw error;
+  }
+}
+
+// Hands out tasks 0..count (bytes from taskOf) to the helpers, two in flight
+// per helper so that none waits while this worker computes, and solves
+// tasks here too; every answer goes to session.fitAccept. Returns how many
+// tasks were solved here (index 0) and by each helper.
+async function spread(count, taskOf, stage, progress, work) {
   let next = 0;
   let done = 0;
   let failed = false;
-  // Tasks solved here (index 0) and by each helper.
   const solvedBy = new Array(helpers.length + 1).fill(0);
-  const take = () => (failed || next >= tasks ? -1 : next++);
+  const take = () => (failed || next >= count ? -1 : next++);
+  const bytesOf = (k) => {
+    const start = performance.now();
+    const bytes = taskOf(k);
+    work.handling += (performance.now() - start) / 1000;
+    return bytes;
+  };
   const accept = (answer, by) => {
+    const start = performance.now();
     session.fitAccept(answer);
+    work.handling += (performance.now() - start) / 1000;
     solvedBy[by]++;
     done++;
-    progress('fitting frequencies', done / tasks);
+    progress(stage, done / count);
   };
   const viaHelper = async (link, by) => {
     for (let k = take(); k >= 0; k = take()) {
-      const { bytes, seconds } = await link.request('solve', session.fitTask(k));
+      const { bytes, seconds } = await link.request('solve', bytesOf(k));
       if (failed) return;
-      taskSeconds += seconds;
+      work.seconds += seconds;
       accept(bytes, by);
     }
   };
   const here = async () => {
     for (let k = take(); k >= 0; k = take()) {
-      const task = session.fitTask(k);
+      const task = bytesOf(k);
       const start = performance.now();
       const answer = solver.solve(task);
-      taskSeconds += (performance.now() - start) / 1000;
+      work.seconds += (performance.now() - start) / 1000;
       accept(answer, 0);
       await nextTurn(); // let the helpers' answers in
     }
   };
-  progress('fitting frequencies', 0);
   try {
     await Promise.all([...helpers.flatMap((link, i) => [viaHelper(link, i + 1), viaHelper(link, i + 1)]), here()]);
   } catch (error) {
     failed = true;
-    session.fitAbort();
     throw error;
   }
-  const solved = performance.now();
-  const report = session.fitFinish(progress);
-  const timing = { begin: (begun - started) / 1000, finish: (performance.now() - solved) / 1000, tasks: taskSeconds };
-  return { report, solvedBy, timing };
+  return solvedBy;
 }
 
 // Resolves after the messages already queued for this worker (a macrotask

@@ -1,7 +1,8 @@
 // A fit spread over several workers (worker.js "Helpers") gives exactly the
 // fit of one worker: the same report, the same generator values, the same
 // model file, on the pixel grid and on a measured lattice; every helper
-// solves tasks; and the page says how many workers fitted.
+// solves tasks, and helpers make generator images; and the page says how
+// many workers fitted.
 
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
@@ -25,6 +26,7 @@ async function fitBothWays(page, example, settingsPatch) {
         report: result.report,
         workers: result.workers,
         solvedBy: result.solvedBy,
+        imagesBy: result.imagesBy,
         generators: result.generators.map((g) => Array.from(g.values)),
         model: Array.from((await client.request('model-bytes')).bytes),
         stages: [...stages],
@@ -42,6 +44,11 @@ function assertSameFit(one, three, what) {
   assert.equal(three.workers, 3);
   assert.equal(three.solvedBy.length, 3);
   three.solvedBy.forEach((count, i) => assert.ok(count >= 1, `${what}: worker ${i} solved ${count} tasks (${three.solvedBy})`));
+  // Every generator image made once, and the helpers made some of them.
+  assert.equal(one.imagesBy, null);
+  assert.equal(three.imagesBy.length, 3);
+  assert.equal(three.imagesBy.reduce((a, b) => a + b, 0), one.report.generators.length, `${what}: generator images ${three.imagesBy}`);
+  assert.ok(three.imagesBy[1] + three.imagesBy[2] >= 1, `${what}: no generator image made by a helper (${three.imagesBy})`);
   assert.equal(three.helperMemory.length, 2);
   assert.deepEqual(three.report, one.report, `${what}: reports differ`);
   assert.deepEqual(three.generators, one.generators, `${what}: generator values differ`);
@@ -61,10 +68,10 @@ test('three workers fit bit-for-bit what one worker fits', async (t) => {
     await page.goto(new URL('worker-client.js', url).href);
     const cloth = await fitBothWays(page, 'woven-cloth', {});
     assertSameFit(cloth[1], cloth[3], 'woven cloth, pixel grid');
-    t.diagnostic(`woven cloth: tasks solved per worker ${cloth[3].solvedBy}`);
+    t.diagnostic(`woven cloth: tasks solved per worker ${cloth[3].solvedBy}, generator images ${cloth[3].imagesBy}`);
     const micrograph = await fitBothWays(page, 'honeycomb-micrograph', {});
     assertSameFit(micrograph[1], micrograph[3], 'honeycomb micrograph, measured lattice');
-    t.diagnostic(`honeycomb micrograph: tasks solved per worker ${micrograph[3].solvedBy}`);
+    t.diagnostic(`honeycomb micrograph: tasks solved per worker ${micrograph[3].solvedBy}, generator images ${micrograph[3].imagesBy}`);
     assert.deepEqual(browser.errors, []);
   } finally {
     await browser.close();

@@ -70,13 +70,17 @@ pub struct BrowserTiming {
 }
 
 /// Where a spread fit's time goes (seconds): before the tasks (transforms,
-/// band, cutting), after them (sums, generator images), and the tasks'
-/// work summed over the workers.
+/// band, cutting), after them (sums, the generator images not handed
+/// out), the tasks' work summed over the workers, and the handing out:
+/// the time the fitting worker spent making the tasks' bytes and taking in
+/// their answers.
 #[derive(Deserialize, Serialize, Clone, Copy)]
 pub struct SpreadTiming {
     pub begin: f64,
     pub finish: f64,
     pub tasks: f64,
+    #[serde(default)]
+    pub handling: f64,
 }
 
 fn to_png16(img: &Image) -> image::ImageBuffer<image::Luma<u16>, Vec<u16>> {

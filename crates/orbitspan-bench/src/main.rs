@@ -149,8 +149,12 @@ struct SpreadResult {
     begin_seconds: f64,
     finish_seconds: f64,
     task_work_seconds: f64,
-    /// `t(1 worker) / (begin + finish + task work / 8)`: an estimate for
-    /// 8 cores, if the tasks divide evenly and nothing else grows.
+    /// Making the tasks' bytes and taking in their answers (in the worker
+    /// that fits: serial).
+    handling_seconds: f64,
+    /// `t(1 worker) / (begin + finish + handling + task work / 8)`: an
+    /// estimate for 8 cores, if the tasks divide evenly and nothing else
+    /// grows.
     expected_speed_up_8: f64,
     memory_bytes: usize,
     memory_over_stack_f32: f64,
@@ -337,6 +341,7 @@ fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> 
             let begin = median(t.spread_timing.iter().map(|s| s.begin).collect());
             let finish = median(t.spread_timing.iter().map(|s| s.finish).collect());
             let work = median(t.spread_timing.iter().map(|s| s.tasks).collect());
+            let handling = median(t.spread_timing.iter().map(|s| s.handling).collect());
             SpreadResult {
                 workers: t.workers,
                 seconds,
@@ -344,7 +349,8 @@ fn measure_browser(dir: &std::path::Path, reps: usize, wanted: impl Fn(&str) -> 
                 begin_seconds: begin,
                 finish_seconds: finish,
                 task_work_seconds: work,
-                expected_speed_up_8: worker / (begin + finish + work / 8.0),
+                handling_seconds: handling,
+                expected_speed_up_8: worker / (begin + finish + handling + work / 8.0),
                 memory_bytes: t.spread_memory_bytes,
                 memory_over_stack_f32: t.spread_memory_bytes as f64 / stack_f32 as f64,
             }
@@ -439,11 +445,11 @@ fn table(r: &Results) -> String {
         if spread.is_empty() {
             s.push_str("\nFit spread over workers: not measured (the browser reports one core).\n");
         } else {
-            s.push_str("\n| spread over workers (same page) | workers | one worker / spread (speed-up) | expected speed-up on 8 cores (estimate) | fit, spread | before tasks | after tasks | tasks' work, all workers | wasm memory, all workers / stack f32 |\n");
-            s.push_str("|---|---|---|---|---|---|---|---|---|\n");
+            s.push_str("\n| spread over workers (same page) | workers | one worker / spread (speed-up) | expected speed-up on 8 cores (estimate) | fit, spread | before tasks | after tasks | tasks' work, all workers | handing out tasks | wasm memory, all workers / stack f32 |\n");
+            s.push_str("|---|---|---|---|---|---|---|---|---|---|\n");
             for (b, p) in spread {
                 s.push_str(&format!(
-                    "| {} | {} | {:.2} | {:.2} | {:.3} s | {:.3} s | {:.3} s | {:.3} s | {:.2} |\n",
+                    "| {} | {} | {:.2} | {:.2} | {:.3} s | {:.3} s | {:.3} s | {:.3} s | {:.3} s | {:.2} |\n",
                     b.name,
                     p.workers,
                     p.speed_up,
@@ -452,10 +458,11 @@ fn table(r: &Results) -> String {
                     p.begin_seconds,
                     p.finish_seconds,
                     p.task_work_seconds,
+                    p.handling_seconds,
                     p.memory_over_stack_f32
                 ));
             }
-            s.push_str("\nExpected on 8 cores: one worker's time / (before + after + tasks' work / 8), assuming the tasks divide evenly over 8 cores and nothing else grows (an estimate, not a measurement).\n");
+            s.push_str("\nHanding out tasks: the time the fitting worker spent making the tasks' bytes and taking in their answers. Expected on 8 cores: one worker's time / (before + after + handing out + tasks' work / 8), assuming the tasks divide evenly over 8 cores and nothing else grows (an estimate, not a measurement).\n");
         }
     }
     s

@@ -17,7 +17,7 @@ use crate::band::{self, Band};
 use crate::eigen;
 use crate::error::{Error, Result};
 use crate::fiber::{for_each_parallel, Gather, Orbit, Symmetry};
-use crate::frame;
+use crate::frame::{self, Generator};
 use crate::isotypic::{isotypic_blocks, Block, Monomial, SparseBasis};
 use crate::matmul::{self, Part};
 use crate::model::Model;
@@ -144,10 +144,12 @@ pub fn fit_with_path(stack: &Stack, settings: &FitSettings, path: FiberPath, pro
 /// The orbit results as they arrive, in any order. Each orbit's share of
 /// the generators is kept at its primary points only
 /// ([`frame::GeneratorSpectra`]), so the per-orbit matrices are not held
-/// whole.
+/// whole. Generator images made elsewhere from a taken layer wait in
+/// `made` until the fit finishes.
 pub(crate) struct Collected {
     results: Vec<Option<OrbitResult>>,
     generators: frame::GeneratorSpectra,
+    made: Vec<Option<Generator>>,
 }
 
 impl Collected {
@@ -155,6 +157,7 @@ impl Collected {
         Collected {
             results: (0..prepared.orbits.len()).map(|_| None).collect(),
             generators: frame::GeneratorSpectra::new(&prepared.sym, &prepared.orbits, prepared.lmax),
+            made: (0..prepared.lmax).map(|_| None).collect(),
         }
     }
 
@@ -166,9 +169,44 @@ impl Collected {
         self.results[o] = Some(result);
     }
 
+    /// Stores orbit `o`'s result whose generator share was cut to the
+    /// orbit's primary points already (`kept`, per layer).
+    pub fn absorb_kept(&mut self, o: usize, result: OrbitResult, kept: Vec<Option<DMatrix<Complex64>>>) {
+        self.generators.write_kept(o, kept);
+        self.results[o] = Some(result);
+    }
+
+    /// Orbit `o`'s primary points (see [`frame::primary_points`]).
+    pub fn primary(&self, o: usize) -> &[usize] {
+        &self.generators.primary()[o]
+    }
+
     /// How many orbits have no result yet.
     pub fn missing(&self) -> usize {
         self.results.iter().filter(|r| r.is_none()).count()
+    }
+
+    /// Generator `l`'s realness defect `Σ_ξ |φ̂_l(ξ) − conj φ̂_l(−ξ)|²`,
+    /// summed in orbit order over the orbits with a result.
+    pub fn defect(&self, l: usize) -> f64 {
+        self.results.iter().flatten().map(|s| s.realness_defect[l]).sum()
+    }
+
+    /// Takes generator `l`'s layer of the shares, to make its image
+    /// elsewhere ([`frame::generator_image`]); the image is then given back
+    /// with [`Collected::put_generator`].
+    pub fn take_generator_layer(&mut self, l: usize) -> frame::LayerShares {
+        self.generators.take_layer(l)
+    }
+
+    /// Generator `l`'s image, made elsewhere from its taken layer.
+    pub fn put_generator(&mut self, l: usize, generator: Generator) {
+        self.made[l] = Some(generator);
+    }
+
+    /// Whether generator `l`'s image was given.
+    pub fn has_generator(&self, l: usize) -> bool {
+        self.made[l].is_some()
     }
 }
 
@@ -307,7 +345,8 @@ impl Prepared {
         if missing > 0 {
             return Err(Error::Internal(format!("{missing} of {} frequency orbits have no result", collected.results.len())));
         }
-        let Collected { results, generators } = collected;
+        let defects: Vec<f64> = (0..self.lmax).map(|l| collected.defect(l)).collect();
+        let Collected { results, generators, made } = collected;
         let results: Vec<OrbitResult> = results.into_iter().flatten().collect();
         let (h, w, lmax) = (self.height, self.width, self.lmax);
         let pixels = (h * w) as f64;
@@ -320,8 +359,7 @@ impl Prepared {
             curve.push(CurvePoint { generators: l, error, relative_error: ratio(error, total_energy) });
         }
         check(progress, "building generators", 0.0)?;
-        let defects: Vec<f64> = (0..lmax).map(|l| results.iter().map(|s| s.realness_defect[l]).sum()).collect();
-        let generators = generators.into_generators(&self.sym, &self.orbits, &defects, self.settings.origin);
+        let generators = generators.into_generators(&self.sym, &self.orbits, &defects, self.settings.origin, made);
         check(progress, "building generators", 1.0)?;
         let layer_dims: Vec<usize> = (0..lmax)
             .map(|l| self.orbits.iter().zip(&results).map(|(o, s)| o.points.len() * s.layer_dims[l]).sum())

@@ -228,7 +228,7 @@ impl References {
 }
 
 /// One layer's shares, per orbit (see [`GeneratorSpectra`]).
-type LayerShares = Vec<Option<DMatrix<Complex64>>>;
+pub(crate) type LayerShares = Vec<Option<DMatrix<Complex64>>>;
 
 /// The Parseval generators `φ_1..φ_L` as they arrive, orbit by orbit, made
 /// into images at the end.
@@ -261,22 +261,22 @@ impl GeneratorSpectra {
     /// buffers freed and made while the pairs are solved (in WebAssembly
     /// the memory never shrinks, and such lists can pin it).
     pub fn new(sym: &Symmetry, orbits: &[Orbit], lmax: usize) -> GeneratorSpectra {
-        let primary = orbits
-            .iter()
-            .map(|orbit| {
-                let fibers: Vec<usize> = orbit.points.iter().map(|&(f, _)| f).collect();
-                pair_fibers::primary(sym, &fibers).iter().enumerate().filter(|(_, &p)| p).map(|(j, _)| j).collect()
-            })
-            .collect();
+        let primary = orbits.iter().map(|orbit| primary_points(sym, orbit)).collect();
         GeneratorSpectra { lmax, layers: vec![vec![None; orbits.len()]; lmax], primary }
     }
 
     /// Keeps orbit `o`'s share (made conjugate-symmetric by
     /// [`make_hermitian`]) at its primary points.
     pub fn write(&mut self, o: usize, share: &[(u64, DMatrix<Complex64>)]) {
-        let primary = &self.primary[o];
-        for (layer, (_, fibers)) in self.layers.iter_mut().zip(share) {
-            layer[o] = (fibers.ncols() > 0).then(|| fibers.select_columns(primary));
+        let kept = share.iter().map(|(_, fibers)| (fibers.ncols() > 0).then(|| fibers.select_columns(&self.primary[o])));
+        self.write_kept(o, kept.collect());
+    }
+
+    /// Keeps orbit `o`'s share given at its primary points already (per
+    /// layer; `None` for an empty layer).
+    pub fn write_kept(&mut self, o: usize, kept: Vec<Option<DMatrix<Complex64>>>) {
+        for (layer, fibers) in self.layers.iter_mut().zip(kept) {
+            layer[o] = fibers;
         }
     }
 
@@ -292,51 +292,92 @@ impl GeneratorSpectra {
     ///
     /// Each image is moved out of the group frame (so that pixel `origin`
     /// of the group frame lands where it belongs) by the worker that made
-    /// it, so no second set of generator images is held.
-    pub fn into_generators(self, sym: &Symmetry, orbits: &[Orbit], defects: &[f64], origin: [usize; 2]) -> Vec<Generator> {
-        let [n1, n2] = sym.lattice().torus();
-        let h2 = half_width(n2);
-        let count = self.lmax;
+    /// it, so no second set of generator images is held. `made[l]`, where
+    /// present, is generator `l` made elsewhere from its taken layer
+    /// ([`GeneratorSpectra::take_layer`], [`generator_image`]); the others
+    /// are made here.
+    pub fn into_generators(self, sym: &Symmetry, orbits: &[Orbit], defects: &[f64], origin: [usize; 2], made: Vec<Option<Generator>>) -> Vec<Generator> {
         let primary = &self.primary;
         let slots: Vec<Mutex<Option<LayerShares>>> = self.layers.into_iter().map(|layer| Mutex::new(Some(layer))).collect();
-        let mut out: Vec<Option<Generator>> = (0..count).map(|_| None).collect();
+        let mut out = made;
+        out.resize_with(self.lmax, || None);
+        let missing: Vec<usize> = (0..self.lmax).filter(|&l| out[l].is_none()).collect();
         let Ok(()) = for_each_parallel(
-            count,
-            |l| {
+            missing.len(),
+            |k| {
+                let l = missing[k];
                 let shares = slots[l].lock().expect("generator layer").take().expect("each generator layer is taken once");
-                let mut half = vec![Complex64::new(0.0, 0.0); n1 * h2];
-                let mut put = |i: usize, v: Complex64| {
-                    let (r, c) = (i / n2, i % n2);
-                    if c < h2 {
-                        half[r * h2 + c] = v;
-                    }
-                };
-                for ((orbit, share), points) in orbits.iter().zip(shares).zip(primary) {
-                    let Some(share) = share else { continue };
-                    for (column, &j) in share.column_iter().zip(points) {
-                        // The transport is made again for each layer: held
-                        // for all layers it would take more memory than the
-                        // shares themselves (an index and a phase per value).
-                        let t = sym.gather(orbit.rep, orbit.points[j].1);
-                        for ((&i, &p), &x) in t.index.iter().zip(&t.phase).zip(column.iter()) {
-                            let v = p.conj() * x;
-                            put(i, v);
-                            put(negative_index(i, n1, n2), v.conj());
-                        }
-                    }
-                }
-                let image = from_group_frame(&ifft2_half_real(half, n1, n2), origin);
-                let norm = image.energy().sqrt();
-                let imaginary = (defects[l].max(0.0) / (4.0 * (n1 * n2) as f64)).sqrt();
-                Generator { imaginary_part: if norm > 0.0 { imaginary / norm } else { 0.0 }, image }
+                generator_image(sym, orbits, primary, shares, defects[l], origin)
             },
-            |l, generator| {
-                out[l] = Some(generator);
+            |k, generator| {
+                out[missing[k]] = Some(generator);
                 Ok::<(), Infallible>(())
             },
         );
         out.into_iter().map(|g| g.expect("every generator transformed")).collect()
     }
+
+    /// Per orbit, its primary points (indices into its points).
+    pub fn primary(&self) -> &[Vec<usize>] {
+        &self.primary
+    }
+
+    /// Takes layer `l`'s shares out (to make that generator's image
+    /// elsewhere, [`generator_image`]); [`GeneratorSpectra::into_generators`]
+    /// must then be given that image.
+    pub fn take_layer(&mut self, l: usize) -> LayerShares {
+        std::mem::take(&mut self.layers[l])
+    }
+}
+
+/// The orbit's primary points (indices into its points): the fibers `f`
+/// with `f ≤ −f` (see [`crate::pair_fibers`]), where a generator's share is
+/// kept.
+pub(crate) fn primary_points(sym: &Symmetry, orbit: &Orbit) -> Vec<usize> {
+    let fibers: Vec<usize> = orbit.points.iter().map(|&(f, _)| f).collect();
+    pair_fibers::primary(sym, &fibers).iter().enumerate().filter(|(_, &p)| p).map(|(j, _)| j).collect()
+}
+
+/// Generator `l`'s image from its layer of every orbit's share (kept at the
+/// orbits' primary points, see [`GeneratorSpectra`]) and its realness
+/// defect (see [`GeneratorSpectra::into_generators`]): the half spectrum
+/// written orbit by orbit, each value with its negative's conjugate, then
+/// transformed and moved out of the group frame.
+pub(crate) fn generator_image(
+    sym: &Symmetry,
+    orbits: &[Orbit],
+    primary: &[Vec<usize>],
+    shares: LayerShares,
+    defect: f64,
+    origin: [usize; 2],
+) -> Generator {
+    let [n1, n2] = sym.lattice().torus();
+    let h2 = half_width(n2);
+    let mut half = vec![Complex64::new(0.0, 0.0); n1 * h2];
+    let mut put = |i: usize, v: Complex64| {
+        let (r, c) = (i / n2, i % n2);
+        if c < h2 {
+            half[r * h2 + c] = v;
+        }
+    };
+    for ((orbit, share), points) in orbits.iter().zip(shares).zip(primary) {
+        let Some(share) = share else { continue };
+        for (column, &j) in share.column_iter().zip(points) {
+            // The transport is made again for each layer: held for all
+            // layers it would take more memory than the shares themselves
+            // (an index and a phase per value).
+            let t = sym.gather(orbit.rep, orbit.points[j].1);
+            for ((&i, &p), &x) in t.index.iter().zip(&t.phase).zip(column.iter()) {
+                let v = p.conj() * x;
+                put(i, v);
+                put(negative_index(i, n1, n2), v.conj());
+            }
+        }
+    }
+    let image = from_group_frame(&ifft2_half_real(half, n1, n2), origin);
+    let norm = image.energy().sqrt();
+    let imaginary = (defect.max(0.0) / (4.0 * (n1 * n2) as f64)).sqrt();
+    Generator { imaginary_part: if norm > 0.0 { imaginary / norm } else { 0.0 }, image }
 }
 
 /// Makes the shares of one pair of conjugate orbits (see
@@ -803,7 +844,7 @@ mod tests {
             for (o, share) in shares.iter().enumerate() {
                 spectra.write(o, share);
             }
-            for (l, generator) in spectra.into_generators(&sym, &orbits, &defects, [0, 0]).iter().enumerate() {
+            for (l, generator) in spectra.into_generators(&sym, &orbits, &defects, [0, 0], Vec::new()).iter().enumerate() {
                 let mut z = before[l].clone();
                 crate::spectrum::fft2_in_place(&mut z, n[0], n[1], true);
                 let scale = 1.0 / (n[0] * n[1]) as f64;

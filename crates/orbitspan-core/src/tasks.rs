@@ -22,16 +22,29 @@
 //! images, `d` (u32 each), tail, `lmax` layer energies, per-image discarded
 //! energies (f64), and per layer the reference chosen (u64), the realness
 //! defect (f64, see `frame::make_hermitian`), the layer's
-//! dimension and the number of columns (u32) and the columns (complex).
+//! dimension and the number of columns (u32) and the columns at the
+//! orbit's primary points (complex; the fit keeps the generators' shares
+//! there only, see `frame::GeneratorSpectra`).
+//!
+//! Once every orbit is answered, the generator images can be made by the
+//! workers too, one task per generator ([`FitTasks::generator_task`]; the
+//! inverse transforms are most of what is left of the fit). Generator task:
+//! `IMAGE_TASK_MAGIC`, the header's length (u32) and JSON (image size,
+//! settings, the generator's index), the realness defect (f64), then per
+//! orbit the number of columns of the generator's layer of its share (u32,
+//! 0 for none) and the columns at the orbit's primary points (complex).
+//! Answer: `IMAGE_ANSWER_MAGIC`, the index, height and width (u32), the
+//! imaginary part (f64, see `frame::Generator`) and the pixels (f64, row
+//! by row). [`TaskSolver::solve`] and [`FitTasks::accept`] take both kinds.
 
 use crate::error::{Error, Result};
-use crate::fiber::{for_each_parallel, Orbit, Symmetry};
+use crate::fiber::{for_each_parallel, Symmetry};
 use crate::fit::{solve_kept_pair, validate, Collected, FiberPath, Fit, OrbitResult, Prepared};
 use crate::pair_fibers::kept_len;
-use crate::frame::References;
+use crate::frame::{self, Generator, References};
 use crate::progress::Progress;
 use crate::settings::FitSettings;
-use crate::stack::Stack;
+use crate::stack::{Image, Stack};
 use nalgebra::DMatrix;
 use num_complex::Complex64;
 use serde::{Deserialize, Serialize};
@@ -39,6 +52,8 @@ use std::ops::Range;
 
 const TASK_MAGIC: &[u8; 8] = b"OSTASK01";
 const ANSWER_MAGIC: &[u8; 8] = b"OSDONE01";
+const IMAGE_TASK_MAGIC: &[u8; 8] = b"OSGTSK01";
+const IMAGE_ANSWER_MAGIC: &[u8; 8] = b"OSGIMG01";
 
 /// Aim for this many tasks (enough to keep 8 workers busy with uneven
 /// tasks), more when a task would hold more than [`TASK_BYTES`].
@@ -54,6 +69,15 @@ struct Header {
     path: String,
     images: usize,
     pairs: Vec<Vec<usize>>,
+}
+
+/// What a worker needs besides the shares to make one generator's image.
+#[derive(Serialize, Deserialize)]
+struct ImageHeader {
+    height: usize,
+    width: usize,
+    settings: FitSettings,
+    generator: usize,
 }
 
 fn path_name(path: FiberPath) -> &'static str {
@@ -85,6 +109,8 @@ pub struct FitTasks {
     /// Per task, whether its bytes were handed out (its pairs' fibers are
     /// then dropped: each task is handed out once).
     given: Vec<bool>,
+    /// Per generator, whether its image task was handed out.
+    images_given: Vec<bool>,
     collected: Collected,
 }
 
@@ -127,7 +153,8 @@ impl FitTasks {
         }
         let collected = Collected::new(&prepared);
         let given = vec![false; tasks.len()];
-        Ok(FitTasks { prepared, tasks, given, collected })
+        let images_given = vec![false; prepared.lmax];
+        Ok(FitTasks { prepared, tasks, given, images_given, collected })
     }
 
     /// The number of tasks.
@@ -168,10 +195,7 @@ impl FitTasks {
         out.extend_from_slice(&(json.len() as u32).to_le_bytes());
         out.extend_from_slice(&json);
         for k in range.clone() {
-            for z in p.fibers.pair(k) {
-                out.extend_from_slice(&z.re.to_le_bytes());
-                out.extend_from_slice(&z.im.to_le_bytes());
-            }
+            put_complex(&mut out, p.fibers.pair(k));
         }
         for k in range {
             self.prepared.fibers.drop_pair(k);
@@ -180,19 +204,62 @@ impl FitTasks {
         Ok(out)
     }
 
-    /// Stores the orbit results of one task's answer.
+    /// The bytes of generator `l`'s image task (see the module
+    /// documentation), once every orbit is answered. The generator's layer
+    /// of the shares goes out with it; each is handed out once. Generators
+    /// not handed out are made by [`FitTasks::finish`].
+    pub fn generator_task(&mut self, l: usize) -> Result<Vec<u8>> {
+        let missing = self.collected.missing();
+        if missing > 0 {
+            return Err(Error::Internal(format!("generator task {l}: {missing} frequency orbits have no result yet")));
+        }
+        let p = &self.prepared;
+        if l >= p.lmax {
+            return Err(Error::Internal(format!("no generator task {l}: there are {}", p.lmax)));
+        }
+        if self.images_given[l] {
+            return Err(Error::Internal(format!("generator task {l} was handed out already (each task is handed out once)")));
+        }
+        let header = ImageHeader { height: p.height, width: p.width, settings: p.settings.clone(), generator: l };
+        let json = serde_json::to_vec(&header).map_err(|e| Error::Internal(format!("generator task header: {e}")))?;
+        let defect = self.collected.defect(l);
+        let shares = self.collected.take_generator_layer(l);
+        let values: usize = shares.iter().flatten().map(|m| m.len()).sum();
+        let mut out = Vec::with_capacity(20 + json.len() + 4 * shares.len() + values * 16);
+        out.extend_from_slice(IMAGE_TASK_MAGIC);
+        put_u32(&mut out, json.len());
+        out.extend_from_slice(&json);
+        out.extend_from_slice(&defect.to_le_bytes());
+        for share in &shares {
+            put_u32(&mut out, share.as_ref().map_or(0, |m| m.ncols()));
+            if let Some(m) = share {
+                put_complex(&mut out, m.as_slice());
+            }
+        }
+        self.images_given[l] = true;
+        Ok(out)
+    }
+
+    /// Stores one task's answer: the orbit results of a fit task, or the
+    /// image of a generator task.
     pub fn accept(&mut self, answer: &[u8]) -> Result<()> {
         let p = &self.prepared;
         let d = p.sym.lattice().fiber_len();
         let mut r = Reader::new(answer);
-        if r.take(8)? != ANSWER_MAGIC {
+        let magic = r.take(8)?;
+        if magic == IMAGE_ANSWER_MAGIC {
+            return self.accept_image(&mut r);
+        }
+        if magic != ANSWER_MAGIC {
             return Err(corrupt("not a fit task answer"));
         }
         let count = r.u32()?;
         let mut parsed = Vec::with_capacity(count);
         for _ in 0..count {
             let o = r.u32()?;
-            let orbit = p.orbits.get(o).ok_or_else(|| corrupt(format!("no orbit {o}")))?;
+            if o >= p.orbits.len() {
+                return Err(corrupt(format!("no orbit {o}")));
+            }
             let (lmax, m, dd) = (r.u32()?, r.u32()?, r.u32()?);
             if lmax != p.lmax || m != p.images || dd != d {
                 return Err(corrupt(format!(
@@ -200,15 +267,37 @@ impl FitTasks {
                     p.lmax, p.images
                 )));
             }
-            let result = read_result(&mut r, orbit, lmax, m, d)?;
-            parsed.push((o, result));
+            let (result, kept) = read_result(&mut r, o, self.collected.primary(o).len(), lmax, m, d)?;
+            parsed.push((o, result, kept));
         }
         if !r.is_done() {
             return Err(corrupt("bytes left after the last orbit"));
         }
-        for (o, result) in parsed {
-            self.collected.absorb(o, result);
+        for (o, result, kept) in parsed {
+            self.collected.absorb_kept(o, result, kept);
         }
+        Ok(())
+    }
+
+    /// A generator task's answer (after its magic).
+    fn accept_image(&mut self, r: &mut Reader) -> Result<()> {
+        let p = &self.prepared;
+        let (l, h, w) = (r.u32()?, r.u32()?, r.u32()?);
+        if l >= p.lmax || !self.images_given[l] {
+            return Err(corrupt(format!("generator {} was not handed out by this fit", l + 1)));
+        }
+        if self.collected.has_generator(l) {
+            return Err(corrupt(format!("generator {} was answered already", l + 1)));
+        }
+        if (h, w) != (p.height, p.width) {
+            return Err(corrupt(format!("generator {}: the answer is {h}x{w}, the fit's images are {}x{}", l + 1, p.height, p.width)));
+        }
+        let imaginary_part = r.f64()?;
+        let pixels = r.f64s(h * w)?;
+        if !r.is_done() {
+            return Err(corrupt("bytes left after the generator's pixels"));
+        }
+        self.collected.put_generator(l, Generator { image: Image::new(h, w, pixels), imaginary_part });
         Ok(())
     }
 
@@ -217,32 +306,46 @@ impl FitTasks {
         self.collected.missing()
     }
 
-    /// The fit from every task's answer (progress stage "building generators").
+    /// The number of generators (of generator tasks).
+    pub fn generators(&self) -> usize {
+        self.prepared.lmax
+    }
+
+    /// The fit from every task's answer (progress stage "building
+    /// generators"): the generators not handed out as tasks are made here.
+    /// A generator task handed out but not answered is an error.
     pub fn finish(self, progress: &mut dyn Progress) -> Result<Fit> {
+        let unanswered = (0..self.prepared.lmax).filter(|&l| self.images_given[l] && !self.collected.has_generator(l)).count();
+        if unanswered > 0 {
+            return Err(Error::Internal(format!("{unanswered} generator tasks handed out have no answer")));
+        }
         self.prepared.finish(self.collected, progress)
     }
 }
 
-fn read_result(r: &mut Reader, orbit: &Orbit, lmax: usize, m: usize, d: usize) -> Result<OrbitResult> {
+/// One orbit's result from an answer, and its generator share at the
+/// orbit's `primary` points (per layer).
+fn read_result(r: &mut Reader, o: usize, primary: usize, lmax: usize, m: usize, d: usize) -> Result<(OrbitResult, Vec<Option<DMatrix<Complex64>>>)> {
     let tail = r.f64()?;
     let layer_energy = (0..lmax).map(|_| r.f64()).collect::<Result<Vec<_>>>()?;
     let image_discarded = (0..m).map(|_| r.f64()).collect::<Result<Vec<_>>>()?;
     let mut layer_dims = Vec::with_capacity(lmax);
-    let mut generator = Vec::with_capacity(lmax);
+    let mut kept = Vec::with_capacity(lmax);
     let mut realness_defect = Vec::with_capacity(lmax);
     for _ in 0..lmax {
-        let chosen = r.u64()?;
+        let _chosen = r.u64()?;
         realness_defect.push(r.f64()?);
         let dim = r.u32()?;
         let cols = r.u32()?;
-        if cols != 0 && cols != orbit.points.len() {
-            return Err(corrupt(format!("{cols} generator columns for an orbit of {} points", orbit.points.len())));
+        if cols != 0 && cols != primary {
+            return Err(corrupt(format!("orbit {o}: {cols} generator columns for {primary} primary points")));
         }
-        let values = (0..d * cols).map(|_| r.complex()).collect::<Result<Vec<_>>>()?;
+        let values = r.complexes(d * cols)?;
         layer_dims.push(dim);
-        generator.push((chosen, DMatrix::from_vec(d, cols, values)));
+        kept.push((cols > 0).then(|| DMatrix::from_vec(d, cols, values)));
     }
-    Ok(OrbitResult { layer_energy, tail, image_discarded, layer_dims, generator, realness_defect })
+    let result = OrbitResult { layer_energy, tail, image_discarded, layer_dims, generator: Vec::new(), realness_defect };
+    Ok((result, kept))
 }
 
 /// Solves tasks.
@@ -257,7 +360,11 @@ impl TaskSolver {
     /// The answer to one task (see the module documentation).
     pub fn solve(&mut self, task: &[u8]) -> Result<Vec<u8>> {
         let mut r = Reader::new(task);
-        if r.take(8)? != TASK_MAGIC {
+        let magic = r.take(8)?;
+        if magic == IMAGE_TASK_MAGIC {
+            return solve_image(&mut r);
+        }
+        if magic != TASK_MAGIC {
             return Err(corrupt("not a fit task"));
         }
         let len = r.u32()?;
@@ -277,8 +384,7 @@ impl TaskSolver {
         // Each pair's kept fibers (image-major, see `pair_fibers`).
         let mut inputs = Vec::with_capacity(header.pairs.len());
         for pair in &header.pairs {
-            let len = kept_len(&sym, &orbits, pair) * m;
-            inputs.push((0..len).map(|_| r.complex()).collect::<Result<Vec<_>>>()?);
+            inputs.push(r.complexes(kept_len(&sym, &orbits, pair) * m)?);
         }
         if !r.is_done() {
             return Err(corrupt("bytes left after the last pair"));
@@ -304,14 +410,18 @@ impl TaskSolver {
             for v in result.layer_energy.iter().chain(&result.image_discarded) {
                 out.extend_from_slice(&v.to_le_bytes());
             }
+            let primary = frame::primary_points(&sym, &orbits[*o]);
             for ((dim, (chosen, columns)), defect) in result.layer_dims.iter().zip(&result.generator).zip(&result.realness_defect) {
                 out.extend_from_slice(&chosen.to_le_bytes());
                 out.extend_from_slice(&defect.to_le_bytes());
                 put_u32(&mut out, *dim);
-                put_u32(&mut out, columns.ncols());
-                for z in columns.iter() {
-                    out.extend_from_slice(&z.re.to_le_bytes());
-                    out.extend_from_slice(&z.im.to_le_bytes());
+                if columns.ncols() == 0 {
+                    put_u32(&mut out, 0);
+                    continue;
+                }
+                put_u32(&mut out, primary.len());
+                for &j in &primary {
+                    put_complex(&mut out, columns.column(j).as_slice());
                 }
             }
         }
@@ -319,8 +429,61 @@ impl TaskSolver {
     }
 }
 
+/// The answer to a generator task (after its magic): the same image as the
+/// in-process fit makes ([`frame::generator_image`]).
+fn solve_image(r: &mut Reader) -> Result<Vec<u8>> {
+    let len = r.u32()?;
+    let header: ImageHeader = serde_json::from_slice(r.take(len)?).map_err(|e| corrupt(format!("generator header: {e}")))?;
+    let sym: Symmetry = validate(header.height, header.width, &header.settings)?;
+    let orbits = sym.orbits();
+    let d = sym.lattice().fiber_len();
+    let defect = r.f64()?;
+    let primary = frame::GeneratorSpectra::new(&sym, &orbits, 0).primary().to_vec();
+    let mut shares = Vec::with_capacity(orbits.len());
+    for (o, points) in primary.iter().enumerate() {
+        let cols = r.u32()?;
+        if cols != 0 && cols != points.len() {
+            return Err(corrupt(format!("orbit {o}: {cols} generator columns for {} primary points", points.len())));
+        }
+        let values = r.complexes(d * cols)?;
+        shares.push((cols > 0).then(|| DMatrix::from_vec(d, cols, values)));
+    }
+    if !r.is_done() {
+        return Err(corrupt("bytes left after the last orbit's share"));
+    }
+    let g = frame::generator_image(&sym, &orbits, &primary, shares, defect, header.settings.origin);
+    let mut out = Vec::with_capacity(28 + 8 * g.image.pixels.len());
+    out.extend_from_slice(IMAGE_ANSWER_MAGIC);
+    for v in [header.generator, g.image.height, g.image.width] {
+        put_u32(&mut out, v);
+    }
+    out.extend_from_slice(&g.imaginary_part.to_le_bytes());
+    put_f64s(&mut out, &g.image.pixels);
+    Ok(out)
+}
+
 fn put_u32(out: &mut Vec<u8>, v: usize) {
     out.extend_from_slice(&(v as u32).to_le_bytes());
+}
+
+/// Appends `values` as little-endian f64s (one resize, then a plain loop:
+/// a task's fibers are tens of megabytes).
+fn put_f64s(out: &mut Vec<u8>, values: &[f64]) {
+    let at = out.len();
+    out.resize(at + 8 * values.len(), 0);
+    for (chunk, v) in out[at..].chunks_exact_mut(8).zip(values) {
+        chunk.copy_from_slice(&v.to_le_bytes());
+    }
+}
+
+/// Appends `values` as pairs of little-endian f64s (real, imaginary).
+fn put_complex(out: &mut Vec<u8>, values: &[Complex64]) {
+    let at = out.len();
+    out.resize(at + 16 * values.len(), 0);
+    for (chunk, z) in out[at..].chunks_exact_mut(16).zip(values) {
+        chunk[..8].copy_from_slice(&z.re.to_le_bytes());
+        chunk[8..].copy_from_slice(&z.im.to_le_bytes());
+    }
 }
 
 /// Reads little-endian numbers; running out of bytes is an error.
@@ -350,8 +513,22 @@ impl<'a> Reader<'a> {
     fn f64(&mut self) -> Result<f64> {
         Ok(f64::from_le_bytes(self.take(8)?.try_into().expect("8 bytes")))
     }
-    fn complex(&mut self) -> Result<Complex64> {
-        Ok(Complex64::new(self.f64()?, self.f64()?))
+    /// `n` f64s, read in one piece.
+    fn f64s(&mut self, n: usize) -> Result<Vec<f64>> {
+        let bytes = self.take(n.checked_mul(8).ok_or_else(|| corrupt("a length beyond memory"))?)?;
+        Ok(bytes.chunks_exact(8).map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes"))).collect())
+    }
+    /// `n` complex values (see [`put_complex`]), read in one piece.
+    fn complexes(&mut self, n: usize) -> Result<Vec<Complex64>> {
+        let bytes = self.take(n.checked_mul(16).ok_or_else(|| corrupt("a length beyond memory"))?)?;
+        Ok(bytes
+            .chunks_exact(16)
+            .map(|c| {
+                let re = f64::from_le_bytes(c[..8].try_into().expect("8 bytes"));
+                let im = f64::from_le_bytes(c[8..].try_into().expect("8 bytes"));
+                Complex64::new(re, im)
+            })
+            .collect())
     }
     fn is_done(&self) -> bool {
         self.at == self.bytes.len()
@@ -366,7 +543,6 @@ mod tests {
     use crate::prng::SplitMix64;
     use crate::progress::Silent;
     use crate::settings::BandSpec;
-    use crate::stack::Image;
 
     fn stack(n: [usize; 2], count: usize, seed: u64) -> Stack {
         let mut rng = SplitMix64(seed);
@@ -390,8 +566,10 @@ mod tests {
         }
     }
 
-    /// Runs every task through bytes, answers accepted in reverse order.
-    fn fit_by_tasks(stack: &Stack, s: &FitSettings, path: FiberPath) -> Fit {
+    /// Runs every task through bytes, answers accepted in reverse order;
+    /// then the generator tasks of the generators `images` picks, the rest
+    /// made by `finish`.
+    fn fit_by_tasks(stack: &Stack, s: &FitSettings, path: FiberPath, images: impl Fn(usize) -> bool) -> Fit {
         let mut tasks = FitTasks::with_path(stack, s, path, &mut Silent).unwrap();
         assert!(tasks.len() > 1, "the example is cut into several tasks");
         let mut solver = TaskSolver::new();
@@ -400,6 +578,12 @@ mod tests {
             tasks.accept(answer).unwrap();
         }
         assert_eq!(tasks.missing(), 0);
+        assert_eq!(tasks.generators(), s.generators);
+        let picked: Vec<usize> = (0..tasks.generators()).filter(|&l| images(l)).collect();
+        let answers: Vec<Vec<u8>> = picked.iter().map(|&l| solver.solve(&tasks.generator_task(l).unwrap()).unwrap()).collect();
+        for answer in answers.iter().rev() {
+            tasks.accept(answer).unwrap();
+        }
         tasks.finish(&mut Silent).unwrap()
     }
 
@@ -422,13 +606,16 @@ mod tests {
             let stack = stack(n, count, 100 + k as u64);
             let s = settings(symbol, cell, l);
             let direct = fit_with_path(&stack, &s, path, &mut Silent).unwrap();
-            assert_identical(&direct, &fit_by_tasks(&stack, &s, path), &format!("{symbol:?}"));
+            // Generator images made here, by tasks, or some of each.
+            assert_identical(&direct, &fit_by_tasks(&stack, &s, path, |_| false), &format!("{symbol:?}"));
+            assert_identical(&direct, &fit_by_tasks(&stack, &s, path, |_| true), &format!("{symbol:?}, generator tasks"));
+            assert_identical(&direct, &fit_by_tasks(&stack, &s, path, |l| l % 2 == 1), &format!("{symbol:?}, some generator tasks"));
         }
         // Band-limited: the band's restriction happens before the tasks.
         let stack = stack([16, 16], 3, 7);
         let s = FitSettings { band: Some(BandSpec::Frequencies(60)), ..settings(GroupSymbol::P4m, [4, 4], 2) };
         let direct = fit_with_path(&stack, &s, FiberPath::Auto, &mut Silent).unwrap();
-        assert_identical(&direct, &fit_by_tasks(&stack, &s, FiberPath::Auto), "band-limited p4m");
+        assert_identical(&direct, &fit_by_tasks(&stack, &s, FiberPath::Auto, |l| l == 0), "band-limited p4m");
     }
 
     #[test]
@@ -456,6 +643,56 @@ mod tests {
         tasks.accept(&answer).unwrap();
         let missing = tasks.missing();
         assert!(missing > 0);
+        assert!(tasks.generator_task(0).unwrap_err().to_string().contains("no result yet"));
         assert!(tasks.finish(&mut Silent).unwrap_err().to_string().contains("have no result"));
+    }
+
+    #[test]
+    fn damaged_generator_tasks_are_refused_with_the_problem() {
+        let stack = stack([16, 16], 2, 5);
+        let s = settings(GroupSymbol::P4m, [4, 4], 3);
+        let all_answered = || {
+            let mut tasks = FitTasks::new(&stack, &s, &mut Silent).unwrap();
+            let mut solver = TaskSolver::new();
+            for k in 0..tasks.len() {
+                let answer = solver.solve(&tasks.task(k).unwrap()).unwrap();
+                tasks.accept(&answer).unwrap();
+            }
+            tasks
+        };
+        let mut tasks = all_answered();
+        let mut solver = TaskSolver::new();
+        assert!(tasks.generator_task(3).unwrap_err().to_string().contains("there are 3"));
+        let task = tasks.generator_task(1).unwrap();
+        assert!(tasks.generator_task(1).unwrap_err().to_string().contains("handed out already"));
+        let short = solver.solve(&task[..task.len() - 3]).unwrap_err().to_string();
+        assert!(short.contains("cut short"), "{short}");
+        let mut long = task.clone();
+        long.push(0);
+        assert!(solver.solve(&long).unwrap_err().to_string().contains("bytes left"));
+        let answer = solver.solve(&task).unwrap();
+        assert!(tasks.accept(&answer[..answer.len() - 8]).unwrap_err().to_string().contains("cut short"));
+        // An image for a generator this fit did not hand out, or for
+        // another image size, is refused.
+        let mut other = all_answered();
+        let foreign = solver.solve(&other.generator_task(2).unwrap()).unwrap();
+        assert!(tasks.accept(&foreign).unwrap_err().to_string().contains("not handed out"));
+        let mut wide = FitTasks::new(&self::stack([20, 20], 2, 5), &s, &mut Silent).unwrap();
+        for k in 0..wide.len() {
+            let answer = solver.solve(&wide.task(k).unwrap()).unwrap();
+            wide.accept(&answer).unwrap();
+        }
+        let wide_answer = solver.solve(&wide.generator_task(1).unwrap()).unwrap();
+        assert!(tasks.accept(&wide_answer).unwrap_err().to_string().contains("20x20"));
+        // A generator handed out and not answered keeps the fit from
+        // finishing; answered twice is refused.
+        let mut unanswered = all_answered();
+        unanswered.generator_task(0).unwrap();
+        assert!(unanswered.finish(&mut Silent).unwrap_err().to_string().contains("1 generator tasks"));
+        tasks.accept(&answer).unwrap();
+        assert!(tasks.accept(&answer).unwrap_err().to_string().contains("answered already"));
+        // The fit finishes with the image from the task; the others made here.
+        let fit = tasks.finish(&mut Silent).unwrap();
+        assert_identical(&fit, &fit_with_path(&stack, &s, FiberPath::Auto, &mut Silent).unwrap(), "one generator by task");
     }
 }

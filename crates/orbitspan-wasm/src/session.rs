@@ -405,8 +405,10 @@ impl Session {
     /// tasks for other workers (core `tasks`): validates, resamples onto a
     /// measured lattice if asked, transforms the images. Returns the number
     /// of tasks. Then `fitTask(k)` gives each task's bytes for a
-    /// [`FitTaskSolver`], `fitAccept` takes the answers in any order, and
-    /// `fitFinish` ends the fit exactly as `fit` would (bit-identical).
+    /// [`FitTaskSolver`], `fitAccept` takes the answers in any order, then
+    /// (optionally) `fitGeneratorTask(l)` hands out the generator images
+    /// the same way, and `fitFinish` ends the fit exactly as `fit` would
+    /// (bit-identical).
     /// Starting another fit drops an unfinished one.
     #[wasm_bindgen(js_name = fitBegin)]
     pub fn fit_begin(&mut self, settings: JsValue, progress: &Function) -> JsResult<usize> {
@@ -438,7 +440,25 @@ impl Session {
         Ok(Uint8Array::from(bytes.as_slice()))
     }
 
-    /// Takes one task's answer (from any worker, in any order).
+    /// The number of generator tasks of the fit begun by `fitBegin` (one per
+    /// generator).
+    #[wasm_bindgen(js_name = fitGeneratorTasks)]
+    pub fn fit_generator_tasks(&mut self) -> JsResult<usize> {
+        Ok(self.pending_fit()?.tasks.generators())
+    }
+
+    /// The bytes of generator `index`'s image task (core
+    /// `FitTasks::generator_task`), once every fit task is answered: made
+    /// by a [`FitTaskSolver`], its answer goes to `fitAccept`. Generators
+    /// not handed out are made by `fitFinish`.
+    #[wasm_bindgen(js_name = fitGeneratorTask)]
+    pub fn fit_generator_task(&mut self, index: usize) -> JsResult<Uint8Array> {
+        let bytes = self.pending_fit()?.tasks.generator_task(index).map_err(error)?;
+        Ok(Uint8Array::from(bytes.as_slice()))
+    }
+
+    /// Takes one task's answer (from any worker, in any order): a fit
+    /// task's or a generator task's.
     #[wasm_bindgen(js_name = fitAccept)]
     pub fn fit_accept(&mut self, answer: &[u8]) -> JsResult<()> {
         match self.pending.as_mut() {
@@ -874,8 +894,9 @@ fn residual_of(image: &Image, fitted: &Image) -> Image {
     Image::new(image.height, image.width, image.pixels.iter().zip(&fitted.pixels).map(|(f, p)| f - p).collect())
 }
 
-/// Solves fit tasks in a helper worker (core `tasks::TaskSolver`): the
-/// worker needs no session and no images, only the task's bytes.
+/// Solves fit tasks and generator tasks in a helper worker (core
+/// `tasks::TaskSolver`): the worker needs no session and no images, only
+/// the task's bytes.
 #[wasm_bindgen]
 #[derive(Default)]
 pub struct FitTaskSolver {

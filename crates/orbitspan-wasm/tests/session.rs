@@ -493,6 +493,15 @@ fn fit_by_tasks(session: &mut Session, settings: &PageSettings) -> JsValue {
     for answer in answers.iter().rev() {
         session.fit_accept(answer).unwrap();
     }
+    // Generator images: all but the first by tasks (the first made by
+    // fitFinish), answers in reverse order.
+    let generators = session.fit_generator_tasks().unwrap();
+    assert_eq!(generators, settings.generators);
+    let answers: Vec<Vec<u8>> =
+        (1..generators).map(|l| solver.solve(&session.fit_generator_task(l).unwrap().to_vec()).unwrap().to_vec()).collect();
+    for answer in answers.iter().rev() {
+        session.fit_accept(answer).unwrap();
+    }
     session.fit_finish(&keep_going()).unwrap()
 }
 
