@@ -171,6 +171,19 @@ impl FitTasks {
     /// handed out once: its pairs' fibers are dropped with it, so the
     /// fibers held shrink as the tasks go out.
     pub fn task(&mut self, k: usize) -> Result<Vec<u8>> {
+        let mut out = Vec::new();
+        self.task_into(k, |total, piece| {
+            out.reserve_exact(total - out.len());
+            out.extend_from_slice(piece)
+        })?;
+        Ok(out)
+    }
+
+    /// Task `k`'s bytes as [`FitTasks::task`] makes them, handed piece by
+    /// piece to `piece` in order, each with the total length (so that they
+    /// can be written straight where they go, without a second buffer of
+    /// tens of megabytes).
+    pub fn task_into(&mut self, k: usize, mut piece: impl FnMut(usize, &[u8])) -> Result<()> {
         let range = self
             .tasks
             .get(k)
@@ -190,18 +203,21 @@ impl FitTasks {
         };
         let json = serde_json::to_vec(&header).map_err(|e| Error::Internal(format!("fit task header: {e}")))?;
         let values: usize = range.clone().map(|k| p.fibers.pair(k).len()).sum();
-        let mut out = Vec::with_capacity(12 + json.len() + values * 16);
-        out.extend_from_slice(TASK_MAGIC);
-        out.extend_from_slice(&(json.len() as u32).to_le_bytes());
-        out.extend_from_slice(&json);
+        let mut head = Vec::with_capacity(12 + json.len());
+        head.extend_from_slice(TASK_MAGIC);
+        put_u32(&mut head, json.len());
+        head.extend_from_slice(&json);
+        let total = head.len() + values * 16;
+        piece(total, &head);
+        let mut converted = Vec::new();
         for k in range.clone() {
-            put_complex(&mut out, p.fibers.pair(k));
+            piece(total, complex_bytes(p.fibers.pair(k), &mut converted));
         }
         for k in range {
             self.prepared.fibers.drop_pair(k);
         }
         self.given[k] = true;
-        Ok(out)
+        Ok(())
     }
 
     /// The bytes of generator `l`'s image task (see the module
@@ -466,24 +482,31 @@ fn put_u32(out: &mut Vec<u8>, v: usize) {
     out.extend_from_slice(&(v as u32).to_le_bytes());
 }
 
-/// Appends `values` as little-endian f64s (one resize, then a plain loop:
-/// a task's fibers are tens of megabytes).
+/// Appends `values` as little-endian f64s (a task's fibers are tens of
+/// megabytes: on a little-endian machine, such as WebAssembly's, one copy).
 fn put_f64s(out: &mut Vec<u8>, values: &[f64]) {
-    let at = out.len();
-    out.resize(at + 8 * values.len(), 0);
-    for (chunk, v) in out[at..].chunks_exact_mut(8).zip(values) {
-        chunk.copy_from_slice(&v.to_le_bytes());
+    if cfg!(target_endian = "little") {
+        out.extend_from_slice(bytemuck::cast_slice(values));
+    } else {
+        values.iter().for_each(|v| out.extend_from_slice(&v.to_le_bytes()));
     }
 }
 
-/// Appends `values` as pairs of little-endian f64s (real, imaginary).
+/// Appends `values` as pairs of little-endian f64s (real, imaginary; the
+/// memory layout of `Complex64`).
 fn put_complex(out: &mut Vec<u8>, values: &[Complex64]) {
-    let at = out.len();
-    out.resize(at + 16 * values.len(), 0);
-    for (chunk, z) in out[at..].chunks_exact_mut(16).zip(values) {
-        chunk[..8].copy_from_slice(&z.re.to_le_bytes());
-        chunk[8..].copy_from_slice(&z.im.to_le_bytes());
+    put_f64s(out, bytemuck::cast_slice(values));
+}
+
+/// `values` as [`put_complex`] writes them: their own memory on a
+/// little-endian machine, else converted into `scratch`.
+fn complex_bytes<'a>(values: &'a [Complex64], scratch: &'a mut Vec<u8>) -> &'a [u8] {
+    if cfg!(target_endian = "little") {
+        return bytemuck::cast_slice(values);
     }
+    scratch.clear();
+    put_complex(scratch, values);
+    scratch
 }
 
 /// Reads little-endian numbers; running out of bytes is an error.
@@ -516,11 +539,18 @@ impl<'a> Reader<'a> {
     /// `n` f64s, read in one piece.
     fn f64s(&mut self, n: usize) -> Result<Vec<f64>> {
         let bytes = self.take(n.checked_mul(8).ok_or_else(|| corrupt("a length beyond memory"))?)?;
+        if cfg!(target_endian = "little") {
+            // (One copy into aligned memory: the bytes may sit anywhere.)
+            return Ok(bytemuck::pod_collect_to_vec(bytes));
+        }
         Ok(bytes.chunks_exact(8).map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes"))).collect())
     }
     /// `n` complex values (see [`put_complex`]), read in one piece.
     fn complexes(&mut self, n: usize) -> Result<Vec<Complex64>> {
         let bytes = self.take(n.checked_mul(16).ok_or_else(|| corrupt("a length beyond memory"))?)?;
+        if cfg!(target_endian = "little") {
+            return Ok(bytemuck::pod_collect_to_vec(bytes));
+        }
         Ok(bytes
             .chunks_exact(16)
             .map(|c| {

@@ -436,8 +436,22 @@ impl Session {
     /// is handed out once (its part of the transformed images is dropped).
     #[wasm_bindgen(js_name = fitTask)]
     pub fn fit_task(&mut self, index: usize) -> JsResult<Uint8Array> {
-        let bytes = self.pending_fit()?.tasks.task(index).map_err(error)?;
-        Ok(Uint8Array::from(bytes.as_slice()))
+        // Written straight into the JavaScript array: no second copy of the
+        // task's fibers in the wasm memory (which never shrinks).
+        let mut out = Uint8Array::new_with_length(0);
+        let mut at = 0u32;
+        let tasks = &mut self.pending_fit()?.tasks;
+        tasks
+            .task_into(index, |total, piece| {
+                if at == 0 {
+                    out = Uint8Array::new_with_length(total as u32);
+                }
+                let end = at + piece.len() as u32;
+                out.subarray(at, end).copy_from(piece);
+                at = end;
+            })
+            .map_err(error)?;
+        Ok(out)
     }
 
     /// The number of generator tasks of the fit begun by `fitBegin` (one per
