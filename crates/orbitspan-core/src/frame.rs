@@ -338,8 +338,8 @@ pub(crate) fn primary_points(sym: &Symmetry, orbit: &Orbit) -> Vec<usize> {
     pair_fibers::primary(sym, &fibers).iter().enumerate().filter(|(_, &p)| p).map(|(j, _)| j).collect()
 }
 
-/// Generator `l`'s image from its layer of every orbit's share (kept at the
-/// orbits' primary points, see [`GeneratorSpectra`]) and its realness
+/// One generator's image from its layer of every orbit's share (kept at
+/// the orbits' primary points, see [`GeneratorSpectra`]) and its realness
 /// defect (see [`GeneratorSpectra::into_generators`]): the half spectrum
 /// written orbit by orbit, each value with its negative's conjugate, then
 /// transformed and moved out of the group frame.

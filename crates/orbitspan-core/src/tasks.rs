@@ -454,7 +454,7 @@ fn solve_image(r: &mut Reader) -> Result<Vec<u8>> {
     let orbits = sym.orbits();
     let d = sym.lattice().fiber_len();
     let defect = r.f64()?;
-    let primary = frame::GeneratorSpectra::new(&sym, &orbits, 0).primary().to_vec();
+    let primary: Vec<Vec<usize>> = orbits.iter().map(|orbit| frame::primary_points(&sym, orbit)).collect();
     let mut shares = Vec::with_capacity(orbits.len());
     for (o, points) in primary.iter().enumerate() {
         let cols = r.u32()?;
