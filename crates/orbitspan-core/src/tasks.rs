@@ -20,10 +20,9 @@
 //! each as two f64). Answer:
 //! `ANSWER_MAGIC`, the orbit count (u32), then per orbit: index, `lmax`,
 //! images, `d` (u32 each), tail, `lmax` layer energies, per-image discarded
-//! energies (f64), and per layer the reference chosen (u64), the realness
-//! defect (f64, see `frame::make_hermitian`), the layer's
-//! dimension and the number of columns (u32) and the columns at the
-//! orbit's primary points (complex; the fit keeps the generators' shares
+//! energies (f64), and per layer the realness defect (f64, see
+//! `frame::make_hermitian`), the layer's dimension and the number of
+//! columns (u32) and the columns at the orbit's primary points (complex; the fit keeps the generators' shares
 //! there only, see `frame::GeneratorSpectra`).
 //!
 //! Once every orbit is answered, the generator images can be made by the
@@ -349,7 +348,6 @@ fn read_result(r: &mut Reader, o: usize, primary: usize, lmax: usize, m: usize, 
     let mut kept = Vec::with_capacity(lmax);
     let mut realness_defect = Vec::with_capacity(lmax);
     for _ in 0..lmax {
-        let _chosen = r.u64()?;
         realness_defect.push(r.f64()?);
         let dim = r.u32()?;
         let cols = r.u32()?;
@@ -427,8 +425,7 @@ impl TaskSolver {
                 out.extend_from_slice(&v.to_le_bytes());
             }
             let primary = frame::primary_points(&sym, &orbits[*o]);
-            for ((dim, (chosen, columns)), defect) in result.layer_dims.iter().zip(&result.generator).zip(&result.realness_defect) {
-                out.extend_from_slice(&chosen.to_le_bytes());
+            for ((dim, (_, columns)), defect) in result.layer_dims.iter().zip(&result.generator).zip(&result.realness_defect) {
                 out.extend_from_slice(&defect.to_le_bytes());
                 put_u32(&mut out, *dim);
                 if columns.ncols() == 0 {
@@ -529,9 +526,6 @@ impl<'a> Reader<'a> {
     }
     fn u32(&mut self) -> Result<usize> {
         Ok(u32::from_le_bytes(self.take(4)?.try_into().expect("4 bytes")) as usize)
-    }
-    fn u64(&mut self) -> Result<u64> {
-        Ok(u64::from_le_bytes(self.take(8)?.try_into().expect("8 bytes")))
     }
     fn f64(&mut self) -> Result<f64> {
         Ok(f64::from_le_bytes(self.take(8)?.try_into().expect("8 bytes")))
